@@ -1,0 +1,219 @@
+//! The whole analysis of a snapshot: smiles, swap levels, quality, forward
+//! variance, and the model fit to the leverage swaps.
+
+use super::calibrate::{fit_leverage, FitOutcome, FitSpec, LeverageTarget};
+use super::replication::{replicate, Replication};
+use super::slice::Slice;
+use super::smile::{butterfly_scan, fit_smile, ButterflyViolation, FittedSmile, SmileError, SmileMethod};
+use super::term::TermStructure;
+use super::tolerances::{BUTTERFLY_G_TOL, CALENDAR_TOTAL_VARIANCE_TOL};
+
+/// Share of the variance swap from beyond the quoted strikes above which a slice is
+/// flagged as resting on its wings (common practice, no source).
+pub const WIDE_WING_SHARE: f64 = 0.05;
+
+/// Options of an analysis.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct AnalyzeOptions {
+    /// How smiles are built.
+    pub smile: SmileMethod,
+    /// The model fit; `None` skips it.
+    pub fit: Option<FitSpec>,
+}
+
+/// One expiry's results.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SliceAnalysis {
+    /// Position of the slice in the input.
+    pub input_index: usize,
+    /// Time to expiry (years).
+    pub tau: f64,
+    /// Forward.
+    pub forward: f64,
+    /// Discount factor.
+    pub discount: f64,
+    /// The fitted smile.
+    pub smile: FittedSmile,
+    /// Swap levels and integration diagnostics.
+    pub replication: Replication,
+    /// Forward variance on the period ending at this expiry.
+    pub forward_variance: f64,
+    /// Butterfly arbitrage found on the smile, if any.
+    pub butterfly: Option<ButterflyViolation>,
+    /// False when this expiry's total variance falls below the previous one's.
+    pub calendar_ok: bool,
+    /// Usable quotes.
+    pub points: usize,
+    /// Everything suspect about this slice, in words.
+    pub warnings: Vec<String>,
+}
+
+/// The analysis of a snapshot, slices sorted by expiry.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Analysis {
+    /// Per-expiry results, by increasing `tau`.
+    pub slices: Vec<SliceAnalysis>,
+    /// The model fit, if requested.
+    pub fit: Option<FitOutcome>,
+}
+
+/// Why an analysis could not be done.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum AnalysisError {
+    /// A slice's smile could not be fitted.
+    #[error("slice {index}: {source}")]
+    Smile {
+        /// Input position of the slice.
+        index: usize,
+        /// Why.
+        source: SmileError,
+    },
+    /// Two slices share an expiry.
+    #[error("slices {first} and {second} have the same expiry")]
+    DuplicateExpiry {
+        /// Input position of the first.
+        first: usize,
+        /// Input position of the second.
+        second: usize,
+    },
+    /// No slices.
+    #[error("a snapshot needs at least one slice")]
+    Empty,
+}
+
+/// Analyses validated slices.
+///
+/// # Errors
+/// [`AnalysisError`] for duplicate expiries or a smile that cannot be fitted.
+pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, AnalysisError> {
+    if slices.is_empty() {
+        return Err(AnalysisError::Empty);
+    }
+    let mut order: Vec<usize> = (0..slices.len()).collect();
+    order.sort_by(|&a, &b| slices[a].tau().total_cmp(&slices[b].tau()));
+    for pair in order.windows(2) {
+        if slices[pair[0]].tau() == slices[pair[1]].tau() {
+            let (first, second) = (pair[0].min(pair[1]), pair[0].max(pair[1]));
+            return Err(AnalysisError::DuplicateExpiry { first, second });
+        }
+    }
+    let mut out: Vec<SliceAnalysis> = Vec::with_capacity(slices.len());
+    for &index in &order {
+        let slice = &slices[index];
+        let tau = slice.tau();
+        let smile = fit_smile(slice.quotes(), tau, options.smile).map_err(|source| AnalysisError::Smile { index, source })?;
+        let replication = replicate(&smile.curve, smile.quoted_range, tau);
+        let mut warnings: Vec<String> = slice.notes().to_vec();
+        for (i, distance) in &smile.excluded {
+            warnings.push(format!(
+                "quote at strike {} is {:.1} vol points from the fitted smile: left out as off-market",
+                slice.strikes()[*i],
+                distance * 100.0
+            ));
+        }
+        let (k_lo, k_hi) = smile.quoted_range;
+        let pad = 0.25 * (k_hi - k_lo);
+        let butterfly = butterfly_scan(&smile.curve, k_lo - pad, k_hi + pad, 400, BUTTERFLY_G_TOL);
+        if let Some(b) = butterfly {
+            warnings.push(format!(
+                "butterfly arbitrage: Durrleman's g < 0 for log-moneyness in [{:.3}, {:.3}], minimum {:.3e} at {:.3}",
+                b.k_from, b.k_to, b.g_min, b.k_at_min
+            ));
+        }
+        if replication.wing_share > WIDE_WING_SHARE {
+            warnings.push(format!(
+                "wide wings: {:.1}% of the variance swap comes from beyond the quoted strikes",
+                100.0 * replication.wing_share
+            ));
+        }
+        if !replication.converged {
+            warnings.push(format!(
+                "replication did not reach its accuracy target (wings integrated to log-moneyness {:.1}..{:.1})",
+                replication.limits.0, replication.limits.1
+            ));
+        }
+        out.push(SliceAnalysis {
+            input_index: index,
+            tau,
+            forward: slice.forward(),
+            discount: slice.discount(),
+            points: slice.quotes().len(),
+            smile,
+            replication,
+            forward_variance: f64::NAN,
+            butterfly,
+            calendar_ok: true,
+            warnings,
+        });
+    }
+    check_calendar(&mut out);
+
+    let fit = options.fit.as_ref().map(|spec| {
+        let target = LeverageTarget {
+            taus: out.iter().map(|s| s.tau).collect(),
+            variance_swap: out.iter().map(|s| s.replication.levels.variance).collect(),
+            leverage_swap: out.iter().map(|s| s.replication.levels.leverage).collect(),
+            uncertainty: leverage_uncertainty(slices, &out),
+        };
+        fit_leverage(&target, spec)
+    });
+    Ok(Analysis { slices: out, fit })
+}
+
+/// Forward variance per period and the calendar checks: total variance at fixed
+/// log-moneyness and `tau * VS` must not fall with `tau` (MATH.md sections 3-4).
+fn check_calendar(out: &mut [SliceAnalysis]) {
+    let taus: Vec<f64> = out.iter().map(|s| s.tau).collect();
+    let vs: Vec<f64> = out.iter().map(|s| s.replication.levels.variance).collect();
+    let gs: Vec<f64> = out.iter().map(|s| s.replication.levels.gamma).collect();
+    if let Ok(term) = TermStructure::new(&taus, &vs, &gs) {
+        for (s, xi) in out.iter_mut().zip(term.forward_variances()) {
+            s.forward_variance = xi;
+            if xi < 0.0 {
+                s.calendar_ok = false;
+                s.warnings.push(format!("calendar arbitrage: negative forward variance {xi:.3e} ending at this expiry"));
+            }
+        }
+    }
+    for j in 1..out.len() {
+        let (prev, cur) = (&out[j - 1], &out[j]);
+        let lo = prev.smile.quoted_range.0.max(cur.smile.quoted_range.0);
+        let hi = prev.smile.quoted_range.1.min(cur.smile.quoted_range.1);
+        if !(hi > lo) {
+            continue;
+        }
+        let mut worst: Option<(f64, f64)> = None;
+        for i in 0..=40 {
+            let k = lo + (hi - lo) * i as f64 / 40.0;
+            let drop = prev.smile.curve.total_variance(k) - cur.smile.curve.total_variance(k);
+            if drop > CALENDAR_TOTAL_VARIANCE_TOL && worst.is_none_or(|w| drop > w.1) {
+                worst = Some((k, drop));
+            }
+        }
+        if let Some((k, drop)) = worst {
+            let prev_tau = prev.tau;
+            let s = &mut out[j];
+            s.calendar_ok = false;
+            s.warnings.push(format!(
+                "calendar arbitrage: total variance at log-moneyness {k:.3} is {drop:.3e} below the expiry at tau {prev_tau:.4}"
+            ));
+        }
+    }
+}
+
+/// One-standard-deviation uncertainty of each leverage swap level from the quotes'
+/// bid/ask spreads, when every slice has some: a vol shift of the median half
+/// spread moves the variance swap by about `2 sqrt(VS) h`; the leverage swap is
+/// given the same uncertainty scaled by `sqrt(3 / n)` for `n` independent quotes.
+/// A rule of thumb (common practice, no source): it only sets relative weights.
+fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f64>> {
+    out.iter()
+        .map(|s| {
+            let spreads: Vec<f64> =
+                slices[s.input_index].quotes().iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0).collect();
+            let h = super::smile::svi::median(&spreads)?;
+            let vs = s.replication.levels.variance.max(1e-12);
+            Some(2.0 * vs.sqrt() * h * (3.0 / spreads.len() as f64).sqrt())
+        })
+        .collect()
+}

@@ -1,0 +1,543 @@
+//! Calibration of rough Heston or classical Heston to a leverage swap term
+//! structure (MATH.md section 7), and the volatility-swap convexity a fitted model
+//! implies once a vol-of-vol is supplied.
+//!
+//! Bounded parameters are mapped to the real line by a logistic transform
+//! `x = lo + (hi - lo) / (1 + e^-u)` (chain rule in the Jacobian) and fitted by
+//! argmin's Gauss–Newton with a backtracking line search, started from the best
+//! point of a small grid. If the derivative-based method fails (a singular normal
+//! matrix), Nelder–Mead on the same transform takes over. The outcome is data:
+//! status, iterations, evaluations, residual and active bounds.
+
+use super::models::leverage::{LeverageCurve, LeverageParams, ModelError};
+use super::quadrature::{integrate, QuadratureTolerance};
+use super::special::mittag_leffler::mittag_leffler;
+use super::tolerances::{ACTIVE_BOUND_FRACTION, CALIBRATION_COST_REL_TOL, CALIBRATION_MAX_ITERATIONS};
+use argmin::core::{CostFunction, Error as ArgminError, Executor, Jacobian, Operator, State, TerminationReason};
+use argmin::solver::gaussnewton::GaussNewtonLS;
+use argmin::solver::linesearch::{condition::ArmijoCondition, BacktrackingLineSearch};
+use argmin::solver::neldermead::NelderMead;
+use nalgebra::{DMatrix, DVector};
+use std::cell::Cell;
+use std::time::Instant;
+
+/// Which affine forward-variance model to fit.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ModelKind {
+    /// Rough Heston: Hurst exponent, `rho nu` and mean reversion.
+    RoughHeston,
+    /// Classical Heston: `rho nu` and mean reversion (Hurst exponent 1/2).
+    Heston,
+}
+
+/// The three parameters by name, for reporting which are fixed or at a bound.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ParamName {
+    /// Hurst exponent `H`.
+    Hurst,
+    /// `c = rho * nu`.
+    RhoNu,
+    /// Mean reversion `lambda`.
+    MeanReversion,
+}
+
+impl ParamName {
+    /// The name used in inputs and outputs.
+    pub fn as_str(&self) -> &'static str {
+        match self {
+            Self::Hurst => "hurst",
+            Self::RhoNu => "rho_nu",
+            Self::MeanReversion => "mean_reversion",
+        }
+    }
+
+    const ALL: [ParamName; 3] = [ParamName::Hurst, ParamName::RhoNu, ParamName::MeanReversion];
+
+    /// Search bounds (MATH.md section 7).
+    pub fn bounds(&self) -> (f64, f64) {
+        match self {
+            Self::Hurst => (0.01, 0.5),
+            Self::RhoNu => (-5.0, 0.5),
+            Self::MeanReversion => (0.0, 20.0),
+        }
+    }
+}
+
+/// What to fit: the model, the parameters held fixed, and optionally the
+/// vol-of-vol `nu` for the convexity report.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct FitSpec {
+    /// The model.
+    pub model: Option<ModelKind>,
+    /// Fixed Hurst exponent.
+    pub hurst: Option<f64>,
+    /// Fixed `rho nu`.
+    pub rho_nu: Option<f64>,
+    /// Fixed mean reversion.
+    pub mean_reversion: Option<f64>,
+    /// Vol-of-vol `nu` (not identified by leverage swaps; supplied by the user).
+    pub nu: Option<f64>,
+}
+
+/// Market leverage term structure to fit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LeverageTarget {
+    /// Expiries (years), strictly increasing.
+    pub taus: Vec<f64>,
+    /// Variance swap levels (annualised variance) per expiry.
+    pub variance_swap: Vec<f64>,
+    /// Leverage swap levels (annualised variance) per expiry.
+    pub leverage_swap: Vec<f64>,
+    /// One-standard-deviation uncertainty of each leverage swap level, when known.
+    pub uncertainty: Option<Vec<f64>>,
+}
+
+/// How a fit ended.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FitStatus {
+    /// The solver met its convergence criterion.
+    Converged,
+    /// The iteration cap was reached first.
+    MaxIterations,
+    /// No usable fit (too few expiries, or the model could not be evaluated).
+    Failed,
+}
+
+/// Volatility-swap convexity at one expiry (needs `nu`).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ConvexityPoint {
+    /// Expiry (years).
+    pub tau: f64,
+    /// Standard deviation of annualised realized variance.
+    pub realized_variance_stdev: f64,
+    /// Volatility swap fair strike `E[sqrt(RV)]`, annualised vol.
+    pub volatility_swap: f64,
+    /// `sqrt(VS) - volatility_swap`.
+    pub convexity_adjustment: f64,
+}
+
+/// The outcome of a fit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FitOutcome {
+    /// The model fitted.
+    pub model: ModelKind,
+    /// Fitted (or fixed) parameters.
+    pub params: LeverageParams,
+    /// Parameters held fixed.
+    pub fixed: Vec<ParamName>,
+    /// How it ended.
+    pub status: FitStatus,
+    /// Why, when not converged, or which fallback was used.
+    pub message: Option<String>,
+    /// Solver iterations.
+    pub iterations: u64,
+    /// Model evaluations (grid, solver and line search).
+    pub evaluations: u64,
+    /// Root-mean-square distance between model and market leverage swap levels.
+    pub leverage_rmse: f64,
+    /// Model leverage swap level per expiry (annualised variance).
+    pub model_leverage_swap: Vec<f64>,
+    /// Parameters that ended at a bound of their range.
+    pub active_bounds: Vec<ParamName>,
+    /// Wall time of the fit, microseconds.
+    pub elapsed_us: u64,
+    /// `rho = c / nu`, when `nu` was supplied.
+    pub rho: Option<f64>,
+    /// Volatility-swap convexity per expiry, when `nu` was supplied.
+    pub convexity: Option<Vec<ConvexityPoint>>,
+}
+
+/// Maps free parameters between the unbounded solver space and their bounds.
+#[derive(Debug, Clone)]
+struct Transform {
+    /// Value per parameter: `None` when free.
+    fixed: [Option<f64>; 3],
+    free: Vec<ParamName>,
+}
+
+fn logistic(u: f64) -> f64 {
+    1.0 / (1.0 + (-u).exp())
+}
+
+impl Transform {
+    fn to_params(&self, u: &[f64]) -> (LeverageParams, Vec<f64>) {
+        let mut x = [0.0; 3];
+        let mut dxdu = Vec::with_capacity(self.free.len());
+        let mut next = 0;
+        for (i, name) in ParamName::ALL.iter().enumerate() {
+            x[i] = match self.fixed[i] {
+                Some(v) => v,
+                None => {
+                    let (lo, hi) = name.bounds();
+                    let s = logistic(u[next]);
+                    next += 1;
+                    dxdu.push((hi - lo) * s * (1.0 - s));
+                    lo + (hi - lo) * s
+                }
+            };
+        }
+        (LeverageParams { hurst: x[0], rho_nu: x[1], mean_reversion: x[2] }, dxdu)
+    }
+
+    fn to_unbounded(&self, p: &LeverageParams) -> Vec<f64> {
+        let x = [p.hurst, p.rho_nu, p.mean_reversion];
+        self.free
+            .iter()
+            .map(|name| {
+                let i = ParamName::ALL.iter().position(|n| n == name).unwrap_or(0);
+                let (lo, hi) = name.bounds();
+                let margin = 1e-9 * (hi - lo);
+                let v = x[i].clamp(lo + margin, hi - margin);
+                ((v - lo) / (hi - v)).ln()
+            })
+            .collect()
+    }
+}
+
+/// The least-squares problem handed to argmin (references only, so it is `Copy`).
+#[derive(Clone, Copy)]
+struct LeverageProblem<'a> {
+    curve: &'a LeverageCurve,
+    market_total: &'a [f64],
+    /// Residual scale per expiry: `1 / (T_i * sigma_i)`.
+    scale: &'a [f64],
+    transform: &'a Transform,
+    evaluations: &'a Cell<u64>,
+}
+
+impl LeverageProblem<'_> {
+    fn residuals(&self, u: &[f64]) -> Result<Vec<f64>, ModelError> {
+        self.evaluations.set(self.evaluations.get() + 1);
+        let (p, _) = self.transform.to_params(u);
+        let model = self.curve.total_leverage(&p)?;
+        Ok(model.iter().zip(self.market_total).zip(self.scale).map(|((m, t), s)| (m - t) * s).collect())
+    }
+}
+
+impl Operator for LeverageProblem<'_> {
+    type Param = DVector<f64>;
+    type Output = DVector<f64>;
+
+    fn apply(&self, u: &Self::Param) -> Result<Self::Output, ArgminError> {
+        let r = self.residuals(u.as_slice()).map_err(|e| ArgminError::msg(e.to_string()))?;
+        Ok(DVector::from_vec(r))
+    }
+}
+
+impl Jacobian for LeverageProblem<'_> {
+    type Param = DVector<f64>;
+    type Jacobian = DMatrix<f64>;
+
+    fn jacobian(&self, u: &Self::Param) -> Result<Self::Jacobian, ArgminError> {
+        self.evaluations.set(self.evaluations.get() + 1);
+        let (p, dxdu) = self.transform.to_params(u.as_slice());
+        let lg = self.curve.total_leverage_with_gradient(&p).map_err(|e| ArgminError::msg(e.to_string()))?;
+        let n = lg.total.len();
+        let free = &self.transform.free;
+        Ok(DMatrix::from_fn(n, free.len(), |i, j| {
+            let which = ParamName::ALL.iter().position(|nm| *nm == free[j]).unwrap_or(0);
+            lg.gradient[i][which] * dxdu[j] * self.scale[i]
+        }))
+    }
+}
+
+impl CostFunction for LeverageProblem<'_> {
+    type Param = Vec<f64>;
+    type Output = f64;
+
+    fn cost(&self, u: &Self::Param) -> Result<f64, ArgminError> {
+        let r = self.residuals(u).map_err(|e| ArgminError::msg(e.to_string()))?;
+        Ok(r.iter().map(|x| x * x).sum())
+    }
+}
+
+/// Fits the model in `spec` to the leverage term structure.
+///
+/// Never fails: a fit that cannot be done is reported with [`FitStatus::Failed`]
+/// and a message.
+pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
+    let started = Instant::now();
+    let model = spec.model.unwrap_or(ModelKind::RoughHeston);
+    let hurst_fixed = match model {
+        ModelKind::Heston => Some(0.5),
+        ModelKind::RoughHeston => spec.hurst,
+    };
+    let fixed_values = [hurst_fixed, spec.rho_nu, spec.mean_reversion];
+    let free: Vec<ParamName> =
+        ParamName::ALL.iter().zip(fixed_values).filter(|(_, v)| v.is_none()).map(|(n, _)| *n).collect();
+    let fixed: Vec<ParamName> = ParamName::ALL
+        .iter()
+        .zip([spec.hurst, spec.rho_nu, spec.mean_reversion])
+        .filter(|(n, v)| v.is_some() && !(model == ModelKind::Heston && **n == ParamName::Hurst))
+        .map(|(n, _)| *n)
+        .collect();
+    let transform = Transform { fixed: fixed_values, free: free.clone() };
+    let failed = |message: String, params: LeverageParams| FitOutcome {
+        model,
+        params,
+        fixed: fixed.clone(),
+        status: FitStatus::Failed,
+        message: Some(message),
+        iterations: 0,
+        evaluations: 0,
+        leverage_rmse: f64::NAN,
+        model_leverage_swap: Vec::new(),
+        active_bounds: Vec::new(),
+        elapsed_us: started.elapsed().as_micros() as u64,
+        rho: None,
+        convexity: None,
+    };
+    let nan_params = LeverageParams {
+        hurst: hurst_fixed.unwrap_or(f64::NAN),
+        rho_nu: spec.rho_nu.unwrap_or(f64::NAN),
+        mean_reversion: spec.mean_reversion.unwrap_or(f64::NAN),
+    };
+    let n = target.taus.len();
+    if n < free.len().max(1) {
+        return failed(format!("{} free parameter(s) need at least as many expiries, got {n}", free.len()), nan_params);
+    }
+    let xi = match forward_variances(&target.taus, &target.variance_swap) {
+        Some(xi) => xi,
+        None => return failed("expiries must be positive and strictly increasing".into(), nan_params),
+    };
+    let curve = match LeverageCurve::new(&target.taus, &xi) {
+        Ok(c) => c,
+        Err(e) => return failed(e.to_string(), nan_params),
+    };
+    let market_total: Vec<f64> = target.taus.iter().zip(&target.leverage_swap).map(|(t, l)| t * l).collect();
+    let rms = (target.leverage_swap.iter().map(|l| l * l).sum::<f64>() / n as f64).sqrt().max(1e-6);
+    let sigma: Vec<f64> = match &target.uncertainty {
+        Some(u) if u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0) => {
+            let med = super::smile::svi::median(u).unwrap_or(1.0);
+            u.iter().map(|x| x / med * rms).collect()
+        }
+        _ => vec![rms; n],
+    };
+    let scale: Vec<f64> = target.taus.iter().zip(&sigma).map(|(t, s)| 1.0 / (t * s)).collect();
+    let evaluations = Cell::new(0u64);
+    let problem = LeverageProblem {
+        curve: &curve,
+        market_total: &market_total,
+        scale: &scale,
+        transform: &transform,
+        evaluations: &evaluations,
+    };
+
+    // Start: best point of a small grid over the free parameters.
+    let grid = |name: ParamName, fixed: Option<f64>| -> Vec<f64> {
+        match fixed {
+            Some(v) => vec![v],
+            None => match name {
+                ParamName::Hurst => vec![0.05, 0.15, 0.3, 0.45],
+                ParamName::RhoNu => vec![-0.2, -0.8, -2.0],
+                ParamName::MeanReversion => vec![0.3, 3.0],
+            },
+        }
+    };
+    let mut best: Option<(f64, LeverageParams)> = None;
+    for h in grid(ParamName::Hurst, fixed_values[0]) {
+        for c in grid(ParamName::RhoNu, fixed_values[1]) {
+            for l in grid(ParamName::MeanReversion, fixed_values[2]) {
+                let p = LeverageParams { hurst: h, rho_nu: c, mean_reversion: l };
+                if let Ok(r) = problem.residuals(&transform.to_unbounded(&p)) {
+                    let cost: f64 = r.iter().map(|x| x * x).sum();
+                    if cost.is_finite() && best.as_ref().is_none_or(|b| cost < b.0) {
+                        best = Some((cost, p));
+                    }
+                }
+            }
+        }
+    }
+    let Some((start_cost, start)) = best else {
+        return failed("the model could not be evaluated at any starting point".into(), nan_params);
+    };
+    let u0 = transform.to_unbounded(&start);
+
+    let mut message = None;
+    let mut iterations = 0;
+    let mut status = FitStatus::Converged;
+    let mut u_best = u0.clone();
+    if !free.is_empty() {
+        let gn = run_gauss_newton(&problem, &u0, start_cost);
+        match gn {
+            Ok((u, iters, reason)) => {
+                u_best = u;
+                iterations = iters;
+                if reason != Some(TerminationReason::SolverConverged) {
+                    status = FitStatus::MaxIterations;
+                    message = Some(format!("Gauss-Newton stopped after {iters} iterations without meeting its tolerance"));
+                }
+            }
+            Err(e) => {
+                let nm = run_nelder_mead(&problem, &u0);
+                match nm {
+                    Ok((u, iters, reason)) => {
+                        u_best = u;
+                        iterations = iters;
+                        let how = if reason == Some(TerminationReason::SolverConverged) {
+                            "converged"
+                        } else {
+                            status = FitStatus::MaxIterations;
+                            "stopped at its iteration cap"
+                        };
+                        message = Some(format!("Gauss-Newton failed ({e}); Nelder-Mead {how}"));
+                    }
+                    Err(e2) => {
+                        status = FitStatus::Failed;
+                        message = Some(format!("Gauss-Newton failed ({e}); Nelder-Mead failed ({e2})"));
+                    }
+                }
+            }
+        }
+    }
+    let (params, _) = transform.to_params(&u_best);
+    let model_total = match curve.total_leverage(&params) {
+        Ok(m) => m,
+        Err(e) => return failed(e.to_string(), params),
+    };
+    let model_leverage_swap: Vec<f64> = model_total.iter().zip(&target.taus).map(|(l, t)| l / t).collect();
+    let leverage_rmse = (model_leverage_swap
+        .iter()
+        .zip(&target.leverage_swap)
+        .map(|(m, l)| (m - l).powi(2))
+        .sum::<f64>()
+        / n as f64)
+        .sqrt();
+    let x = [params.hurst, params.rho_nu, params.mean_reversion];
+    let active_bounds = free
+        .iter()
+        .filter(|name| {
+            let i = ParamName::ALL.iter().position(|n| n == *name).unwrap_or(0);
+            let (lo, hi) = name.bounds();
+            let margin = ACTIVE_BOUND_FRACTION * (hi - lo);
+            x[i] <= lo + margin || x[i] >= hi - margin
+        })
+        .cloned()
+        .collect();
+    let (rho, convexity) = match spec.nu {
+        Some(nu) if nu > 0.0 && nu.is_finite() => {
+            (Some(params.rho_nu / nu), convexity(&curve, &target.variance_swap, &params, nu))
+        }
+        _ => (None, None),
+    };
+    FitOutcome {
+        model,
+        params,
+        fixed,
+        status,
+        message,
+        iterations,
+        evaluations: evaluations.get(),
+        leverage_rmse,
+        model_leverage_swap,
+        active_bounds,
+        elapsed_us: started.elapsed().as_micros() as u64,
+        rho,
+        convexity,
+    }
+}
+
+type SolverRun = Result<(Vec<f64>, u64, Option<TerminationReason>), ArgminError>;
+
+fn run_gauss_newton(problem: &LeverageProblem<'_>, u0: &[f64], start_cost: f64) -> SolverRun {
+    let linesearch = BacktrackingLineSearch::new(ArmijoCondition::new(1e-4)?);
+    let tol = (CALIBRATION_COST_REL_TOL * start_cost.sqrt()).max(1e-15);
+    let solver = GaussNewtonLS::new(linesearch).with_tolerance(tol)?;
+    let res = Executor::new(*problem, solver)
+        .configure(|s| s.param(DVector::from_vec(u0.to_vec())).max_iters(CALIBRATION_MAX_ITERATIONS))
+        .ctrlc(false)
+        .timer(false)
+        .run()?;
+    let iters = res.state.get_iter();
+    let reason = res.state.get_termination_reason().cloned();
+    let u = res.state.get_best_param().map(|p| p.as_slice().to_vec()).unwrap_or_else(|| u0.to_vec());
+    Ok((u, iters, reason))
+}
+
+fn run_nelder_mead(problem: &LeverageProblem<'_>, u0: &[f64]) -> SolverRun {
+    let mut simplex = vec![u0.to_vec()];
+    for i in 0..u0.len() {
+        let mut v = u0.to_vec();
+        v[i] += 0.5;
+        simplex.push(v);
+    }
+    let solver = NelderMead::new(simplex).with_sd_tolerance(1e-20)?;
+    let res = Executor::new(*problem, solver)
+        .configure(|s| s.max_iters(2000))
+        .ctrlc(false)
+        .timer(false)
+        .run()?;
+    let iters = res.state.get_iter();
+    let reason = res.state.get_termination_reason().cloned();
+    let u = res.state.get_best_param().cloned().unwrap_or_else(|| u0.to_vec());
+    Ok((u, iters, reason))
+}
+
+/// Piecewise-constant forward variance from variance swap levels (MATH.md
+/// section 4): `xi_j = (T_j VS_j - T_{j-1} VS_{j-1}) / (T_j - T_{j-1})`.
+/// `None` when expiries are not positive and strictly increasing.
+pub fn forward_variances(taus: &[f64], variance_swap: &[f64]) -> Option<Vec<f64>> {
+    if taus.len() != variance_swap.len() {
+        return None;
+    }
+    let mut prev_t = 0.0;
+    let mut prev_total = 0.0;
+    let mut out = Vec::with_capacity(taus.len());
+    for (&t, &vs) in taus.iter().zip(variance_swap) {
+        if !(t > prev_t) || !t.is_finite() {
+            return None;
+        }
+        let total = t * vs;
+        out.push((total - prev_total) / (t - prev_t));
+        prev_t = t;
+        prev_total = total;
+    }
+    Some(out)
+}
+
+/// Variance of total realized variance `Int_0^T xi_0(s) K(T-s)^2 ds`,
+/// `K(t) = nu t^a E_{a,a+1}(-lambda t^a)` (MATH.md section 5), and the
+/// volatility-swap convexity correction `E[sqrt V] ~ sqrt(E V) - Var V / (8 (E V)^1.5)`
+/// (Brockhaus & Long 2000, "Volatility swaps made simple", Risk).
+fn convexity(curve: &LeverageCurve, vs: &[f64], p: &LeverageParams, nu: f64) -> Option<Vec<ConvexityPoint>> {
+    let a = p.hurst + 0.5;
+    let lambda = p.mean_reversion;
+    let kernel_sq = |t: f64| -> [f64; 1] {
+        if t <= 0.0 {
+            return [0.0];
+        }
+        let t_a = t.powf(a);
+        let e = mittag_leffler(a, a + 1.0, -lambda * t_a).unwrap_or(f64::NAN);
+        let k = nu * t_a * e;
+        [k * k]
+    };
+    let tol = QuadratureTolerance { relative: 1e-12, absolute: 1e-300, max_evaluations: 5000 };
+    // G(t) = Int_0^t K(u)^2 du on every gap.
+    let taus = curve.taus();
+    let xi = curve.forward_variances();
+    let g = |t: f64| integrate(kernel_sq, &[0.0, t], tol).value[0];
+    let mut out = Vec::with_capacity(taus.len());
+    for i in 0..taus.len() {
+        let mut var_total = 0.0;
+        for j in 0..=i {
+            let from = if j == 0 { 0.0 } else { taus[j - 1] };
+            let hi_gap = taus[i] - from;
+            let lo_gap = taus[i] - taus[j];
+            var_total += xi[j].max(0.0) * (g(hi_gap) - g(lo_gap));
+        }
+        let t = taus[i];
+        let var_rv = var_total / (t * t);
+        let level = vs[i];
+        if !(level > 0.0) || !var_rv.is_finite() {
+            return None;
+        }
+        let vol_swap = level.sqrt() - var_rv / (8.0 * level.powf(1.5));
+        out.push(ConvexityPoint {
+            tau: t,
+            realized_variance_stdev: var_rv.sqrt(),
+            volatility_swap: vol_swap,
+            convexity_adjustment: level.sqrt() - vol_swap,
+        });
+    }
+    Some(out)
+}

@@ -1,0 +1,19 @@
+//! The numerical core: numbers in, numbers out. No I/O, HTTP, database or async
+//! types live here; the command line and the service are thin shells around it.
+//!
+//! Flow: validated [`slice::Slice`]s -> [`smile`] fit per expiry -> [`replication`]
+//! of variance, gamma and leverage swaps -> [`term`] structure and forward
+//! variance -> [`calibrate`] an affine forward-variance model ([`models`]) to the
+//! leverage swaps. [`analysis::analyze`] runs the whole chain.
+
+pub mod analysis;
+pub mod black;
+pub mod calibrate;
+pub mod models;
+pub mod quadrature;
+pub mod replication;
+pub mod slice;
+pub mod smile;
+pub mod special;
+pub mod term;
+pub mod tolerances;

@@ -1,0 +1,228 @@
+//! Smiles per expiry: a curve of total implied variance `w(k)` over log-moneyness,
+//! fitted to one slice's quotes, with explicit wings and the butterfly check.
+//!
+//! Two fitting methods (MATH.md section 3):
+//! - [`svi`]: raw SVI by quasi-explicit calibration (Zeliade Systems white paper
+//!   2009), weighted by bid/ask, with off-market quotes screened out. The default:
+//!   listed quotes are noisy and sparse, a smoothing fit with linear wings whose
+//!   slopes respect Lee's moment bound holds up where an interpolant reproduces the noise.
+//! - [`monotone`]: a shape-preserving cubic through the quotes (Fritsch & Carlson
+//!   1980, SIAM J. Numer. Anal. 17(2)) with linear wings, for dense clean quotes that
+//!   should be reproduced exactly.
+
+pub mod monotone;
+pub mod svi;
+
+use monotone::MonotoneSmile;
+use svi::SviParams;
+
+/// Total implied variance and its first two derivatives in log-moneyness at one point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SmilePoint {
+    /// Total implied variance `w` (variance x years).
+    pub w: f64,
+    /// `dw/dk`.
+    pub dw: f64,
+    /// `d2w/dk2`.
+    pub d2w: f64,
+}
+
+/// A smile quote after validation: log-moneyness and total variance.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SmileQuote {
+    /// Log-moneyness `ln(K/F)`.
+    pub k: f64,
+    /// Implied volatility (decimal, annualised).
+    pub vol: f64,
+    /// Half the bid/ask spread in vol, when both were quoted.
+    pub half_spread: Option<f64>,
+}
+
+/// How a slice's smile is built from its quotes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum SmileMethod {
+    /// Raw SVI, smoothing, weighted by bid/ask (the default).
+    #[default]
+    Svi,
+    /// Shape-preserving cubic through every quote, linear wings.
+    Monotone,
+}
+
+/// A fitted smile: defined for every log-moneyness, wings included.
+#[derive(Debug, Clone, PartialEq)]
+pub enum SmileCurve {
+    /// Raw SVI over the whole line.
+    Svi(SviParams),
+    /// Cubic between the quotes, linear beyond.
+    Monotone(MonotoneSmile),
+}
+
+impl SmileCurve {
+    /// Total variance and derivatives at log-moneyness `k`.
+    pub fn point(&self, k: f64) -> SmilePoint {
+        match self {
+            Self::Svi(p) => p.point(k),
+            Self::Monotone(m) => m.point(k),
+        }
+    }
+
+    /// Total variance at log-moneyness `k`.
+    pub fn total_variance(&self, k: f64) -> f64 {
+        match self {
+            Self::Svi(p) => p.total_variance(k),
+            Self::Monotone(m) => m.point(k).w,
+        }
+    }
+
+    /// Log-moneyness where the curve's second derivative jumps (interpolation nodes);
+    /// empty for an analytic curve.
+    pub fn kinks(&self) -> &[f64] {
+        match self {
+            Self::Svi(_) => &[],
+            Self::Monotone(m) => m.nodes(),
+        }
+    }
+
+    /// Slopes of total variance in the left (as a magnitude) and right wing.
+    pub fn wing_slopes(&self) -> (f64, f64) {
+        match self {
+            Self::Svi(p) => p.wing_slopes(),
+            Self::Monotone(m) => m.wing_slopes(),
+        }
+    }
+}
+
+/// A smile fitted to one slice, with what the fit says about the quotes.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FittedSmile {
+    /// The curve.
+    pub curve: SmileCurve,
+    /// Root-mean-square distance in vol between the curve and the quotes used.
+    pub rmse_vol: f64,
+    /// Indices of quotes left out of the fit as off-market, with their distance in vol.
+    pub excluded: Vec<(usize, f64)>,
+    /// Lowest and highest quoted log-moneyness.
+    pub quoted_range: (f64, f64),
+}
+
+/// Durrleman's butterfly function `g(k)`; the risk-neutral density is non-negative
+/// where `g >= 0` (Durrleman 2010, "From implied to spot volatilities", Finance
+/// Stoch. 14).
+pub fn durrleman_g(k: f64, p: SmilePoint) -> f64 {
+    let a = 1.0 - k * p.dw / (2.0 * p.w);
+    a * a - 0.25 * p.dw * p.dw * (1.0 / p.w + 0.25) + 0.5 * p.d2w
+}
+
+/// Where a smile has butterfly arbitrage: the range of log-moneyness with `g < 0`
+/// on the scanned grid, and the minimum of `g`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ButterflyViolation {
+    /// First grid point with `g < -tolerance`.
+    pub k_from: f64,
+    /// Last grid point with `g < -tolerance`.
+    pub k_to: f64,
+    /// Smallest `g` found.
+    pub g_min: f64,
+    /// Where the smallest `g` was found.
+    pub k_at_min: f64,
+}
+
+/// Scans `g(k)` over `[k_lo, k_hi]` on `steps + 1` evenly spaced points and reports
+/// the violated range, if any, below `-tolerance`.
+pub fn butterfly_scan(
+    curve: &SmileCurve,
+    k_lo: f64,
+    k_hi: f64,
+    steps: usize,
+    tolerance: f64,
+) -> Option<ButterflyViolation> {
+    let steps = steps.max(1);
+    let mut found: Option<ButterflyViolation> = None;
+    for i in 0..=steps {
+        let k = k_lo + (k_hi - k_lo) * i as f64 / steps as f64;
+        let p = curve.point(k);
+        if !(p.w > 0.0) {
+            // Non-positive total variance is itself an arbitrage (negative price of time).
+            let v = found.get_or_insert(ButterflyViolation { k_from: k, k_to: k, g_min: f64::NEG_INFINITY, k_at_min: k });
+            v.k_to = k;
+            continue;
+        }
+        let g = durrleman_g(k, p);
+        if g < -tolerance {
+            let v = found.get_or_insert(ButterflyViolation { k_from: k, k_to: k, g_min: g, k_at_min: k });
+            v.k_to = k;
+            if g < v.g_min {
+                v.g_min = g;
+                v.k_at_min = k;
+            }
+        }
+    }
+    found
+}
+
+/// Fits a smile to validated quotes (sorted by `k`, at least three) of an expiry
+/// `tau` years away.
+///
+/// # Errors
+/// [`SmileError`] when the quotes cannot carry a smile (too few, unsorted, or
+/// non-finite values).
+pub fn fit_smile(quotes: &[SmileQuote], tau: f64, method: SmileMethod) -> Result<FittedSmile, SmileError> {
+    check_quotes(quotes, tau)?;
+    match method {
+        SmileMethod::Svi => svi::fit(quotes, tau),
+        SmileMethod::Monotone => monotone::fit(quotes, tau),
+    }
+}
+
+/// Why a smile could not be fitted.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum SmileError {
+    /// Fewer than three quotes.
+    #[error("a smile needs at least 3 quotes, got {0}")]
+    TooFewQuotes(usize),
+    /// Log-moneyness not strictly increasing at this quote index.
+    #[error("quote {0} is not above the previous one in strike")]
+    Unsorted(usize),
+    /// A non-finite or non-positive value at this quote index.
+    #[error("quote {0} has a non-finite or non-positive value")]
+    BadValue(usize),
+    /// The expiry is not a positive finite time.
+    #[error("time to expiry must be positive and finite, got {0}")]
+    BadTau(f64),
+}
+
+fn check_quotes(quotes: &[SmileQuote], tau: f64) -> Result<(), SmileError> {
+    if !(tau.is_finite() && tau > 0.0) {
+        return Err(SmileError::BadTau(tau));
+    }
+    if quotes.len() < 3 {
+        return Err(SmileError::TooFewQuotes(quotes.len()));
+    }
+    for (i, q) in quotes.iter().enumerate() {
+        let spread_ok = q.half_spread.is_none_or(|h| h.is_finite() && h >= 0.0);
+        if !(q.k.is_finite() && q.vol.is_finite() && q.vol > 0.0 && spread_ok) || q.vol * q.vol * tau <= 0.0 {
+            return Err(SmileError::BadValue(i));
+        }
+        if i > 0 && q.k <= quotes[i - 1].k {
+            return Err(SmileError::Unsorted(i));
+        }
+    }
+    Ok(())
+}
+
+/// Root-mean-square vol distance between a curve and the quotes at `used` indices.
+pub(crate) fn rmse_vol(curve: &SmileCurve, quotes: &[SmileQuote], tau: f64, used: impl Iterator<Item = usize>) -> f64 {
+    let mut sum = 0.0;
+    let mut n = 0usize;
+    for i in used {
+        let q = quotes[i];
+        let fitted = (curve.total_variance(q.k).max(0.0) / tau).sqrt();
+        sum += (fitted - q.vol).powi(2);
+        n += 1;
+    }
+    if n == 0 {
+        0.0
+    } else {
+        (sum / n as f64).sqrt()
+    }
+}

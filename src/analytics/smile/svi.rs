@@ -1,0 +1,367 @@
+//! Raw SVI smiles and their quasi-explicit calibration (Zeliade Systems white paper
+//! 2009, "Quasi-explicit calibration of Gatheral's SVI model").
+//!
+//! `w(k) = a + b (rho (k - m) + sqrt((k - m)^2 + sigma^2))`. For fixed `(m, sigma)`
+//! the fit is a linear least-squares problem in `(a, d, c) = (a, rho b sigma, b sigma)`
+//! over a polytope; the outer search over `(m, sigma)` uses argmin's Nelder–Mead.
+
+use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
+use crate::analytics::tolerances::{DEFAULT_HALF_SPREAD_VOL, MAX_WING_SLOPE, OUTLIER_FLOOR_VOL, OUTLIER_SIGMAS};
+use argmin::core::{CostFunction, Error as ArgminError, Executor};
+use argmin::solver::neldermead::NelderMead;
+
+/// Raw SVI parameters (total variance form).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SviParams {
+    /// Level `a` (variance x years).
+    pub a: f64,
+    /// Wing steepness `b >= 0`.
+    pub b: f64,
+    /// Asymmetry `rho` in [-1, 1].
+    pub rho: f64,
+    /// Horizontal shift `m` (log-moneyness).
+    pub m: f64,
+    /// ATM curvature scale `sigma > 0` (log-moneyness).
+    pub sigma: f64,
+}
+
+impl SviParams {
+    /// Total variance at `k`.
+    pub fn total_variance(&self, k: f64) -> f64 {
+        let x = k - self.m;
+        self.a + self.b * (self.rho * x + (x * x + self.sigma * self.sigma).sqrt())
+    }
+
+    /// Total variance and its first two derivatives at `k`.
+    pub fn point(&self, k: f64) -> SmilePoint {
+        let x = k - self.m;
+        let r = (x * x + self.sigma * self.sigma).sqrt();
+        SmilePoint {
+            w: self.a + self.b * (self.rho * x + r),
+            dw: self.b * (self.rho + x / r),
+            d2w: self.b * self.sigma * self.sigma / (r * r * r),
+        }
+    }
+
+    /// Asymptotic slopes: `b (1 - rho)` on the left (magnitude), `b (1 + rho)` on the right.
+    pub fn wing_slopes(&self) -> (f64, f64) {
+        (self.b * (1.0 - self.rho), self.b * (1.0 + self.rho))
+    }
+}
+
+/// Data of the inner (linear) problem.
+struct InnerData<'a> {
+    k: &'a [f64],
+    w: &'a [f64],
+    weight: &'a [f64],
+    w_max: f64,
+    slope_cap: f64,
+}
+
+/// Solves `A t = r` for a symmetric `n x n` system (n <= 3) by Gaussian elimination
+/// with partial pivoting; `None` when (numerically) singular.
+fn solve_small(n: usize, mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Option<[f64; 3]> {
+    let scale = (0..n).map(|i| a[i][i].abs()).fold(0.0, f64::max);
+    if !(scale > 0.0) || !scale.is_finite() {
+        return None;
+    }
+    for col in 0..n {
+        let pivot = (col..n).max_by(|&i, &j| a[i][col].abs().total_cmp(&a[j][col].abs()))?;
+        if a[pivot][col].abs() <= 1e-13 * scale {
+            return None;
+        }
+        a.swap(col, pivot);
+        r.swap(col, pivot);
+        for row in col + 1..n {
+            let f = a[row][col] / a[col][col];
+            for c in col..n {
+                a[row][c] -= f * a[col][c];
+            }
+            r[row] -= f * r[col];
+        }
+    }
+    let mut t = [0.0; 3];
+    for row in (0..n).rev() {
+        let mut s = r[row];
+        for c in row + 1..n {
+            s -= a[row][c] * t[c];
+        }
+        t[row] = s / a[row][row];
+    }
+    Some(t)
+}
+
+impl InnerData<'_> {
+    /// Best `(a, d, c)` for given `(m, sigma)` and its weighted squared error.
+    fn solve(&self, m: f64, sigma: f64) -> (f64, [f64; 3]) {
+        // Normal equations of the basis [1, y, sqrt(1 + y^2)], y = (k - m)/sigma.
+        let mut mat = [[0.0; 3]; 3];
+        let mut v = [0.0; 3];
+        let mut s = 0.0;
+        for i in 0..self.k.len() {
+            let y = (self.k[i] - m) / sigma;
+            let phi = [1.0, y, (1.0 + y * y).sqrt()];
+            let om = self.weight[i];
+            for r in 0..3 {
+                for c in 0..3 {
+                    mat[r][c] += om * phi[r] * phi[c];
+                }
+                v[r] += om * phi[r] * self.w[i];
+            }
+            s += om * self.w[i] * self.w[i];
+        }
+        let objective = |x: &[f64; 3]| {
+            let mut f = s;
+            for r in 0..3 {
+                f -= 2.0 * v[r] * x[r];
+                for c in 0..3 {
+                    f += x[r] * mat[r][c] * x[c];
+                }
+            }
+            f.max(0.0)
+        };
+        let bound = self.slope_cap * sigma;
+        let tol = 1e-12 * (1.0 + bound + self.w_max);
+        let feasible = |x: &[f64; 3]| {
+            let (a, d, c) = (x[0], x[1], x[2]);
+            a >= -tol && a <= self.w_max + tol && c + tol >= d.abs() && c + d.abs() <= bound + tol
+        };
+        // Faces of the (c, d) square |d| <= c, c + |d| <= bound, as origin + span.
+        let cd_faces: [((f64, f64), &[(f64, f64)]); 9] = [
+            ((0.0, 0.0), &[(1.0, 0.0), (0.0, 1.0)]),
+            ((0.0, 0.0), &[(1.0, 1.0)]),
+            ((0.0, 0.0), &[(1.0, -1.0)]),
+            ((bound, 0.0), &[(-1.0, 1.0)]),
+            ((bound, 0.0), &[(1.0, 1.0)]),
+            ((0.0, 0.0), &[]),
+            ((0.5 * bound, 0.5 * bound), &[]),
+            ((0.5 * bound, -0.5 * bound), &[]),
+            ((bound, 0.0), &[]),
+        ];
+        let a_faces: [Option<f64>; 3] = [None, Some(0.0), Some(self.w_max)];
+        let mut best = (f64::INFINITY, [0.0, 0.0, 0.0]);
+        for (face_index, (origin, span)) in cd_faces.iter().enumerate() {
+            for (a_index, a_fixed) in a_faces.iter().enumerate() {
+                // x = p0 + P t, x = (a, d, c).
+                let p0 = [a_fixed.unwrap_or(0.0), origin.1, origin.0];
+                let mut cols: Vec<[f64; 3]> = Vec::with_capacity(3);
+                if a_fixed.is_none() {
+                    cols.push([1.0, 0.0, 0.0]);
+                }
+                for (dc, dd) in span.iter() {
+                    cols.push([0.0, *dd, *dc]);
+                }
+                let n = cols.len();
+                let mut x = p0;
+                if n > 0 {
+                    let mp0: [f64; 3] = std::array::from_fn(|r| (0..3).map(|c| mat[r][c] * p0[c]).sum());
+                    let mut h = [[0.0; 3]; 3];
+                    let mut g = [0.0; 3];
+                    for i in 0..n {
+                        for j in 0..n {
+                            h[i][j] = (0..3).map(|r| cols[i][r] * (0..3).map(|c| mat[r][c] * cols[j][c]).sum::<f64>()).sum();
+                        }
+                        g[i] = (0..3).map(|r| cols[i][r] * (v[r] - mp0[r])).sum();
+                    }
+                    let Some(t) = solve_small(n, h, g) else { continue };
+                    for (i, col) in cols.iter().enumerate() {
+                        for r in 0..3 {
+                            x[r] += t[i] * col[r];
+                        }
+                    }
+                }
+                if feasible(&x) {
+                    let f = objective(&x);
+                    if f < best.0 {
+                        best = (f, x);
+                    }
+                    // The unconstrained optimum of a convex problem, when feasible, is the answer.
+                    if face_index == 0 && a_index == 0 {
+                        return best;
+                    }
+                }
+            }
+        }
+        best
+    }
+}
+
+/// The outer problem for argmin: cost of `(m, ln sigma)`.
+struct OuterProblem<'a> {
+    inner: &'a InnerData<'a>,
+    m_range: (f64, f64),
+}
+
+impl CostFunction for OuterProblem<'_> {
+    type Param = Vec<f64>;
+    type Output = f64;
+
+    fn cost(&self, p: &Self::Param) -> Result<f64, ArgminError> {
+        let (m, ln_sigma) = (p[0], p[1]);
+        // Outside the search box the cost rises steeply, which keeps Nelder–Mead inside.
+        let penalty = (self.m_range.0 - m).max(0.0) + (m - self.m_range.1).max(0.0)
+            + (-9.0 - ln_sigma).max(0.0)
+            + (ln_sigma - 2.0).max(0.0);
+        let sigma = ln_sigma.clamp(-9.0, 2.0).exp();
+        let m = m.clamp(self.m_range.0, self.m_range.1);
+        let (f, _) = self.inner.solve(m, sigma);
+        Ok(f + penalty * (1.0 + f) * 1e6)
+    }
+}
+
+/// Raw SVI parameters from the inner solution `(a, d, c)` at `(m, sigma)`.
+fn params_from(m: f64, sigma: f64, x: [f64; 3]) -> SviParams {
+    let (a, d, c) = (x[0], x[1], x[2]);
+    let b = c / sigma;
+    let rho = if c > 0.0 { (d / c).clamp(-1.0, 1.0) } else { 0.0 };
+    SviParams { a, b, rho, m, sigma }
+}
+
+/// Fits SVI to the quotes at `use_mask` with weights; returns parameters and cost.
+fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64) -> Result<SviParams, SmileError> {
+    let w_max = w.iter().cloned().fold(0.0, f64::max);
+    let inner = InnerData { k, w, weight, w_max, slope_cap: MAX_WING_SLOPE };
+    let k_lo = k.iter().cloned().fold(f64::INFINITY, f64::min);
+    let k_hi = k.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
+    let span = (k_hi - k_lo).max(1e-3);
+    let m_range = (k_lo - span, k_hi + span);
+    // Coarse grid for the start (the outer problem is not convex).
+    let mut start = (f64::INFINITY, 0.0, 0.0);
+    for i in 0..5 {
+        let m = k_lo + span * (i as f64) / 4.0;
+        for scale in [0.1, 0.3, 1.0, 3.0] {
+            let sigma = (atm_sd * scale).clamp(1e-4, 7.0);
+            let (f, _) = inner.solve(m, sigma);
+            if f < start.0 {
+                start = (f, m, sigma.ln());
+            }
+        }
+    }
+    let (_, m0, ls0) = start;
+    let simplex = vec![vec![m0, ls0], vec![m0 + 0.1 * span, ls0], vec![m0, ls0 + 0.4]];
+    let problem = OuterProblem { inner: &inner, m_range };
+    let solver = NelderMead::new(simplex)
+        .with_sd_tolerance(1e-16)
+        .map_err(|_| SmileError::TooFewQuotes(k.len()))?;
+    let result = Executor::new(problem, solver)
+        .configure(|state| state.max_iters(400))
+        .ctrlc(false)
+        .timer(false)
+        .run();
+    let (m, ln_sigma) = match result {
+        Ok(res) => match res.state.best_param.as_ref() {
+            Some(p) => (p[0], p[1]),
+            None => (m0, ls0),
+        },
+        Err(_) => (m0, ls0),
+    };
+    let m = m.clamp(m_range.0, m_range.1);
+    let sigma = ln_sigma.clamp(-9.0, 2.0).exp();
+    let (_, x) = inner.solve(m, sigma);
+    Ok(params_from(m, sigma, x))
+}
+
+/// Quasi-explicit SVI fit, weighted by the quotes' bid/ask spreads, with one round
+/// of off-market screening: quotes further from the first fit than
+/// `OUTLIER_SIGMAS` robust standard deviations (and their own half spread times
+/// that factor, and `OUTLIER_FLOOR_VOL`) are left out and the fit is redone. At most
+/// a fifth of the quotes are left out, and never below five kept.
+///
+/// # Errors
+/// [`SmileError`] for unusable quotes (see [`super::fit_smile`]).
+pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
+    let n = quotes.len();
+    let k: Vec<f64> = quotes.iter().map(|q| q.k).collect();
+    let w: Vec<f64> = quotes.iter().map(|q| q.vol * q.vol * tau).collect();
+    let spreads: Vec<f64> = quotes.iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0).collect();
+    let default_spread = median(&spreads).unwrap_or(DEFAULT_HALF_SPREAD_VOL);
+    let half_spread: Vec<f64> =
+        quotes.iter().map(|q| q.half_spread.filter(|h| *h > 0.0).unwrap_or(default_spread)).collect();
+    // A vol error e maps to a total-variance error of about 2 vol tau e.
+    let mut weight: Vec<f64> =
+        (0..n).map(|i| 1.0 / (2.0 * quotes[i].vol * tau * half_spread[i]).powi(2)).collect();
+    let norm = weight.iter().sum::<f64>() / n as f64;
+    weight.iter_mut().for_each(|x| *x /= norm);
+    let atm_index = k.iter().enumerate().min_by(|a, b| a.1.abs().total_cmp(&b.1.abs())).map_or(0, |(i, _)| i);
+    let atm_sd = w[atm_index].sqrt();
+
+    let first = fit_weighted(&k, &w, &weight, atm_sd)?;
+    let residual: Vec<f64> =
+        (0..n).map(|i| (first.total_variance(k[i]).max(0.0) / tau).sqrt() - quotes[i].vol).collect();
+    let abs_res: Vec<f64> = residual.iter().map(|r| r.abs()).collect();
+    let robust_sd = 1.4826 * median(&abs_res).unwrap_or(0.0);
+    let mut candidates: Vec<(usize, f64)> = (0..n)
+        .filter(|&i| {
+            let given = quotes[i].half_spread.map_or(0.0, |h| OUTLIER_SIGMAS * h);
+            abs_res[i] > (OUTLIER_SIGMAS * robust_sd).max(given).max(OUTLIER_FLOOR_VOL)
+        })
+        .map(|i| (i, residual[i]))
+        .collect();
+    candidates.sort_by(|a, b| b.1.abs().total_cmp(&a.1.abs()));
+    let max_excluded = (n / 5).min(n.saturating_sub(5));
+    candidates.truncate(max_excluded);
+
+    let params = if candidates.is_empty() {
+        first
+    } else {
+        let mut wt = weight.clone();
+        for (i, _) in &candidates {
+            wt[*i] = 0.0;
+        }
+        fit_weighted(&k, &w, &wt, atm_sd)?
+    };
+    candidates.sort_by_key(|c| c.0);
+    let curve = SmileCurve::Svi(params);
+    let excluded_set: Vec<usize> = candidates.iter().map(|c| c.0).collect();
+    let rmse = rmse_vol(&curve, quotes, tau, (0..n).filter(|i| !excluded_set.contains(i)));
+    Ok(FittedSmile { curve, rmse_vol: rmse, excluded: candidates, quoted_range: (k[0], k[n - 1]) })
+}
+
+/// Median of a slice (`None` when empty).
+pub(crate) fn median(values: &[f64]) -> Option<f64> {
+    if values.is_empty() {
+        return None;
+    }
+    let mut v = values.to_vec();
+    v.sort_by(f64::total_cmp);
+    let mid = v.len() / 2;
+    Some(if v.len() % 2 == 1 { v[mid] } else { 0.5 * (v[mid - 1] + v[mid]) })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn recovers_an_svi_smile_from_its_own_quotes() {
+        // Identity: quotes generated from an arbitrage-free SVI are fitted back.
+        let truth = SviParams { a: 0.01, b: 0.08, rho: -0.5, m: 0.05, sigma: 0.15 };
+        let tau = 0.5;
+        let quotes: Vec<SmileQuote> = (0..25)
+            .map(|i| {
+                let k = -0.6 + 0.05 * i as f64;
+                SmileQuote { k, vol: (truth.total_variance(k) / tau).sqrt(), half_spread: None }
+            })
+            .collect();
+        let fit = fit(&quotes, tau).expect("fit");
+        // Tolerance: 1e-7 in vol, limited by Nelder-Mead's convergence in (m, sigma).
+        assert!(fit.rmse_vol < 1e-7, "rmse {:e}", fit.rmse_vol);
+        assert!(fit.excluded.is_empty());
+    }
+
+    #[test]
+    fn leaves_out_an_off_market_quote() {
+        let truth = SviParams { a: 0.02, b: 0.1, rho: -0.4, m: 0.0, sigma: 0.2 };
+        let tau = 1.0;
+        let mut quotes: Vec<SmileQuote> = (0..21)
+            .map(|i| {
+                let k = -0.5 + 0.05 * i as f64;
+                SmileQuote { k, vol: (truth.total_variance(k) / tau).sqrt(), half_spread: Some(0.005) }
+            })
+            .collect();
+        quotes[7].vol += 0.15;
+        let fit = fit(&quotes, tau).expect("fit");
+        assert_eq!(fit.excluded.iter().map(|e| e.0).collect::<Vec<_>>(), vec![7]);
+        assert!(fit.rmse_vol < 1e-6, "rmse {:e}", fit.rmse_vol);
+    }
+}

@@ -1,0 +1,3 @@
+//! Special functions the models need and no crate provides.
+
+pub mod mittag_leffler;

@@ -1,0 +1,11 @@
+//! logstrip: model-free variance, gamma and leverage swap term structures from
+//! option smiles by log-strip replication, the forward-variance curve, and a fast
+//! rough Heston (or Heston) fit to the leverage swaps.
+//!
+//! Layers: [`analytics`] is the pure numerical core; [`wire`] holds the JSON
+//! formats (raw input types, validation into analytics types, output types);
+//! [`cli`] implements the subcommands on top.
+
+pub mod analytics;
+pub mod cli;
+pub mod wire;

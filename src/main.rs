@@ -1,0 +1,63 @@
+//! The `logstrip` command: parses the command line and hands over to `logstrip::cli`.
+
+use clap::{Parser, Subcommand};
+use logstrip::cli::{self, CliError, Status};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Model-free variance, gamma and leverage swap term structures from option smiles,
+/// with a rough Heston fit to the leverage swaps.
+#[derive(Parser)]
+#[command(name = "logstrip", version, about)]
+struct Args {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Analyse a snapshot of smiles: swap term structures, quality flags, model fit.
+    Analyze {
+        /// Snapshot JSON file (`-` for standard input).
+        #[arg(long, short)]
+        input: PathBuf,
+        /// Indent the JSON output.
+        #[arg(long)]
+        pretty: bool,
+    },
+    /// Fit the model to given variance and gamma (or leverage) swap levels.
+    Fit {
+        /// Swap-levels JSON file (`-` for standard input).
+        #[arg(long, short)]
+        input: PathBuf,
+        /// Indent the JSON output.
+        #[arg(long)]
+        pretty: bool,
+    },
+    /// Time the analysis and the fit of a snapshot in-process.
+    Bench {
+        /// Snapshot JSON file.
+        #[arg(long, short)]
+        input: PathBuf,
+        /// Number of runs.
+        #[arg(long, default_value_t = 200)]
+        runs: usize,
+    },
+}
+
+fn main() -> ExitCode {
+    let args = Args::parse();
+    let mut stdout = std::io::stdout().lock();
+    let result: Result<(), CliError> = match args.command {
+        Command::Analyze { input, pretty } => cli::run_analyze(&input, pretty, &mut stdout),
+        Command::Fit { input, pretty } => cli::run_fit(&input, pretty, &mut stdout),
+        Command::Bench { input, runs } => cli::bench::run_bench(&input, runs, &mut stdout),
+    };
+    match result {
+        Ok(()) => ExitCode::from(Status::Ok as u8),
+        Err(e) => {
+            eprintln!("{e}");
+            ExitCode::from(e.status() as u8)
+        }
+    }
+}

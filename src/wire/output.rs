@@ -1,0 +1,305 @@
+//! Output documents: the analysis of a snapshot and the fit of swap levels.
+
+use super::input::{ValidSnapshot, ValidSwaps};
+use crate::analytics::analysis::Analysis;
+use crate::analytics::calibrate::{FitOutcome, FitStatus, ModelKind};
+use crate::analytics::smile::SmileCurve;
+use serde::Serialize;
+
+/// The analysis of a snapshot (or, from `logstrip fit`, of swap levels).
+#[derive(Debug, Clone, Serialize)]
+pub struct AnalysisDoc {
+    /// Underlying name, as given.
+    pub underlying: String,
+    /// Valuation time, RFC 3339 UTC.
+    pub as_of: String,
+    /// Spot, when given.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub spot: Option<f64>,
+    /// Smile method used (`svi` or `monotone`); absent for `logstrip fit`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub smile: Option<&'static str>,
+    /// One entry per expiry, sorted by `tau`.
+    pub curve: Vec<CurveDoc>,
+    /// The model fit, unless the model was `none`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub fit: Option<FitDoc>,
+}
+
+/// Swap levels at one expiry (annualised variance; vols are their square roots).
+#[derive(Debug, Clone, Serialize)]
+pub struct CurveDoc {
+    /// Time to expiry, years.
+    pub tau: f64,
+    /// Expiry as given, when given as a date.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub expiry: Option<String>,
+    /// Forward.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub forward: Option<f64>,
+    /// Discount factor.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub discount: Option<f64>,
+    /// Variance swap fair strike.
+    pub variance_swap: f64,
+    /// `sqrt(variance_swap)`.
+    pub variance_swap_vol: Option<f64>,
+    /// Gamma swap fair strike.
+    pub gamma_swap: f64,
+    /// `sqrt(gamma_swap)`.
+    pub gamma_swap_vol: Option<f64>,
+    /// `gamma_swap - variance_swap`.
+    pub leverage_swap: f64,
+    /// Forward variance on the period ending at this expiry.
+    pub forward_variance: f64,
+    /// Data quality of the slice.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub quality: Option<QualityDoc>,
+    /// The fitted smile.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub smile: Option<SmileDoc>,
+}
+
+/// Data quality of a slice.
+#[derive(Debug, Clone, Serialize)]
+pub struct QualityDoc {
+    /// Usable quotes.
+    pub points: usize,
+    /// Quotes left out of the smile fit as off-market.
+    pub excluded_points: usize,
+    /// Share of the variance swap from beyond the quoted strikes.
+    pub wing_share: f64,
+    /// RMS vol distance between smile and quotes used.
+    pub smile_rmse_vol: f64,
+    /// Estimated absolute integration error of the variance swap level.
+    pub integration_error: f64,
+    /// No butterfly arbitrage found.
+    pub butterfly_ok: bool,
+    /// No calendar arbitrage against the previous expiry.
+    pub calendar_ok: bool,
+    /// What is suspect, in words.
+    pub warnings: Vec<String>,
+}
+
+/// The fitted smile of a slice.
+#[derive(Debug, Clone, Serialize)]
+#[serde(tag = "method", rename_all = "snake_case")]
+pub enum SmileDoc {
+    /// Raw SVI parameters.
+    Svi {
+        /// Level.
+        a: f64,
+        /// Wing steepness.
+        b: f64,
+        /// Asymmetry.
+        rho: f64,
+        /// Shift.
+        m: f64,
+        /// Curvature scale.
+        sigma: f64,
+    },
+    /// Monotone cubic through the quotes.
+    Monotone {
+        /// Number of nodes.
+        nodes: usize,
+        /// Left wing slope (magnitude) and right wing slope of total variance.
+        wing_slopes: [f64; 2],
+    },
+}
+
+/// The model fit.
+#[derive(Debug, Clone, Serialize)]
+pub struct FitDoc {
+    /// `rough_heston` or `heston`.
+    pub model: &'static str,
+    /// Parameters.
+    pub params: ParamsDoc,
+    /// Names of parameters held fixed.
+    pub fixed: Vec<&'static str>,
+    /// `converged`, `max_iterations` or `failed`.
+    pub status: &'static str,
+    /// Why, when not converged, or which fallback was used.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub message: Option<String>,
+    /// Solver iterations.
+    pub iterations: u64,
+    /// Model evaluations.
+    pub evaluations: u64,
+    /// RMS distance between model and market leverage swaps (annualised variance).
+    pub leverage_rmse: Option<f64>,
+    /// Model leverage swap per expiry.
+    pub model_leverage_swap: Vec<f64>,
+    /// Parameters that ended at a bound.
+    pub active_bounds: Vec<&'static str>,
+    /// Wall time of the fit, microseconds.
+    pub elapsed_us: u64,
+    /// Vol-of-vol as supplied.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub nu: Option<f64>,
+    /// `rho_nu / nu`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub rho: Option<f64>,
+    /// Volatility-swap convexity per expiry (with `nu`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub convexity: Option<Vec<ConvexityDoc>>,
+}
+
+/// Fitted parameters.
+#[derive(Debug, Clone, Serialize)]
+pub struct ParamsDoc {
+    /// Hurst exponent (rough Heston only).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub hurst: Option<f64>,
+    /// `rho * nu`.
+    pub rho_nu: Option<f64>,
+    /// Mean reversion.
+    pub mean_reversion: Option<f64>,
+}
+
+/// Convexity at one expiry.
+#[derive(Debug, Clone, Serialize)]
+pub struct ConvexityDoc {
+    /// Expiry, years.
+    pub tau: f64,
+    /// Standard deviation of annualised realized variance.
+    pub realized_variance_stdev: f64,
+    /// Volatility swap fair strike (annualised vol).
+    pub volatility_swap: f64,
+    /// `variance_swap_vol - volatility_swap`.
+    pub convexity_adjustment: f64,
+}
+
+fn finite(x: f64) -> Option<f64> {
+    x.is_finite().then_some(x)
+}
+
+fn vol_of(level: f64) -> Option<f64> {
+    (level >= 0.0).then(|| level.sqrt())
+}
+
+/// The output form of a fit.
+pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitDoc {
+    FitDoc {
+        model: match fit.model {
+            ModelKind::RoughHeston => "rough_heston",
+            ModelKind::Heston => "heston",
+        },
+        params: ParamsDoc {
+            hurst: match fit.model {
+                ModelKind::RoughHeston => finite(fit.params.hurst),
+                ModelKind::Heston => None,
+            },
+            rho_nu: finite(fit.params.rho_nu),
+            mean_reversion: finite(fit.params.mean_reversion),
+        },
+        fixed: fit.fixed.iter().map(|p| p.as_str()).collect(),
+        status: match fit.status {
+            FitStatus::Converged => "converged",
+            FitStatus::MaxIterations => "max_iterations",
+            FitStatus::Failed => "failed",
+        },
+        message: fit.message.clone(),
+        iterations: fit.iterations,
+        evaluations: fit.evaluations,
+        leverage_rmse: finite(fit.leverage_rmse),
+        model_leverage_swap: fit.model_leverage_swap.clone(),
+        active_bounds: fit.active_bounds.iter().map(|p| p.as_str()).collect(),
+        elapsed_us: fit.elapsed_us,
+        nu: fit.convexity.as_ref().and(nu),
+        rho: fit.rho,
+        convexity: fit.convexity.as_ref().map(|points| {
+            points
+                .iter()
+                .map(|c| ConvexityDoc {
+                    tau: c.tau,
+                    realized_variance_stdev: c.realized_variance_stdev,
+                    volatility_swap: c.volatility_swap,
+                    convexity_adjustment: c.convexity_adjustment,
+                })
+                .collect()
+        }),
+    }
+}
+
+/// The output of `logstrip analyze`.
+pub fn analysis_doc(input: &ValidSnapshot, analysis: &Analysis) -> AnalysisDoc {
+    let curve = analysis
+        .slices
+        .iter()
+        .map(|s| {
+            let l = s.replication.levels;
+            CurveDoc {
+                tau: s.tau,
+                expiry: input.expiries.get(s.input_index).cloned().flatten(),
+                forward: Some(s.forward),
+                discount: Some(s.discount),
+                variance_swap: l.variance,
+                variance_swap_vol: vol_of(l.variance),
+                gamma_swap: l.gamma,
+                gamma_swap_vol: vol_of(l.gamma),
+                leverage_swap: l.leverage,
+                forward_variance: s.forward_variance,
+                quality: Some(QualityDoc {
+                    points: s.points,
+                    excluded_points: s.smile.excluded.len(),
+                    wing_share: s.replication.wing_share,
+                    smile_rmse_vol: s.smile.rmse_vol,
+                    integration_error: s.replication.error.variance,
+                    butterfly_ok: s.butterfly.is_none(),
+                    calendar_ok: s.calendar_ok,
+                    warnings: s.warnings.clone(),
+                }),
+                smile: Some(match &s.smile.curve {
+                    SmileCurve::Svi(p) => SmileDoc::Svi { a: p.a, b: p.b, rho: p.rho, m: p.m, sigma: p.sigma },
+                    SmileCurve::Monotone(m) => {
+                        let (l, r) = m.wing_slopes();
+                        SmileDoc::Monotone { nodes: m.nodes().len(), wing_slopes: [l, r] }
+                    }
+                }),
+            }
+        })
+        .collect();
+    let nu = input.options.fit.as_ref().and_then(|f| f.nu);
+    AnalysisDoc {
+        underlying: input.underlying.clone(),
+        as_of: input.as_of.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
+        spot: input.spot,
+        smile: Some(match input.options.smile {
+            crate::analytics::smile::SmileMethod::Svi => "svi",
+            crate::analytics::smile::SmileMethod::Monotone => "monotone",
+        }),
+        curve,
+        fit: analysis.fit.as_ref().map(|f| fit_doc(f, nu)),
+    }
+}
+
+/// The output of `logstrip fit`: the swaps as given, with forward variance, and the fit.
+pub fn swaps_doc(input: &ValidSwaps, fit: Option<&FitOutcome>) -> AnalysisDoc {
+    let t = &input.target;
+    let xi = crate::analytics::calibrate::forward_variances(&t.taus, &t.variance_swap).unwrap_or_default();
+    let curve = (0..t.taus.len())
+        .map(|i| CurveDoc {
+            tau: t.taus[i],
+            expiry: input.expiries[i].clone(),
+            forward: None,
+            discount: None,
+            variance_swap: t.variance_swap[i],
+            variance_swap_vol: vol_of(t.variance_swap[i]),
+            gamma_swap: input.gamma_swap[i],
+            gamma_swap_vol: vol_of(input.gamma_swap[i]),
+            leverage_swap: t.leverage_swap[i],
+            forward_variance: xi.get(i).cloned().unwrap_or(f64::NAN),
+            quality: None,
+            smile: None,
+        })
+        .collect();
+    let nu = input.fit.as_ref().and_then(|f| f.nu);
+    AnalysisDoc {
+        underlying: input.underlying.clone(),
+        as_of: input.as_of.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
+        spot: input.spot,
+        smile: None,
+        curve,
+        fit: fit.map(|f| fit_doc(f, nu)),
+    }
+}

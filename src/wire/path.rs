@@ -1,0 +1,107 @@
+//! Field paths and the list of input problems they point to.
+
+use std::fmt;
+
+/// One step of a path into the input document.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Segment {
+    /// An object member.
+    Field(String),
+    /// An array element.
+    Index(usize),
+}
+
+/// A path into the input document, shown as `slices[3].points[7].vol` and
+/// convertible to a JSON pointer (RFC 6901) `/slices/3/points/7/vol`.
+#[derive(Debug, Clone, PartialEq, Eq, Default)]
+pub struct FieldPath(pub Vec<Segment>);
+
+impl FieldPath {
+    /// The document root.
+    pub fn root() -> Self {
+        Self(Vec::new())
+    }
+
+    /// This path extended by a member name.
+    pub fn field(&self, name: &str) -> Self {
+        let mut v = self.0.clone();
+        v.push(Segment::Field(name.to_string()));
+        Self(v)
+    }
+
+    /// This path extended by an array index.
+    pub fn index(&self, i: usize) -> Self {
+        let mut v = self.0.clone();
+        v.push(Segment::Index(i));
+        Self(v)
+    }
+
+    /// The JSON pointer (RFC 6901) of this path.
+    pub fn json_pointer(&self) -> String {
+        self.0
+            .iter()
+            .map(|s| match s {
+                Segment::Field(f) => format!("/{}", f.replace('~', "~0").replace('/', "~1")),
+                Segment::Index(i) => format!("/{i}"),
+            })
+            .collect()
+    }
+}
+
+impl fmt::Display for FieldPath {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.0.is_empty() {
+            return write!(f, "(document)");
+        }
+        for (n, s) in self.0.iter().enumerate() {
+            match s {
+                Segment::Field(name) if n == 0 => write!(f, "{name}")?,
+                Segment::Field(name) => write!(f, ".{name}")?,
+                Segment::Index(i) => write!(f, "[{i}]")?,
+            }
+        }
+        Ok(())
+    }
+}
+
+/// One problem with the input, at a path.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Problem {
+    /// Where.
+    pub path: FieldPath,
+    /// What is wrong, in words.
+    pub message: String,
+}
+
+impl fmt::Display for Problem {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "{}: {}", self.path, self.message)
+    }
+}
+
+/// Every problem found in an input, in document order; never empty.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+#[error("{}", .problems.iter().map(|p| p.to_string()).collect::<Vec<_>>().join("\n"))]
+pub struct InputErrors {
+    /// The problems.
+    pub problems: Vec<Problem>,
+}
+
+impl InputErrors {
+    /// A single problem.
+    pub fn one(path: FieldPath, message: impl Into<String>) -> Self {
+        Self { problems: vec![Problem { path, message: message.into() }] }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn paths_render_as_text_and_pointer() {
+        let p = FieldPath::root().field("slices").index(3).field("points").index(7).field("vol");
+        assert_eq!(p.to_string(), "slices[3].points[7].vol");
+        assert_eq!(p.json_pointer(), "/slices/3/points/7/vol");
+    }
+}
