@@ -10,7 +10,7 @@ use super::tolerances::{BUTTERFLY_G_TOL, CALENDAR_TOTAL_VARIANCE_TOL};
 
 /// Share of the variance swap from beyond the quoted strikes above which a slice is
 /// flagged as resting on its wings (common practice, no source).
-pub const WIDE_WING_SHARE: f64 = 0.05;
+pub const WIDE_WING_SHARE: f64 = 0.10;
 
 /// Options of an analysis.
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -92,7 +92,7 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
     let mut order: Vec<usize> = (0..slices.len()).collect();
     order.sort_by(|&a, &b| slices[a].tau().total_cmp(&slices[b].tau()));
     for pair in order.windows(2) {
-        if slices[pair[0]].tau() == slices[pair[1]].tau() {
+        if (slices[pair[0]].tau() - slices[pair[1]].tau()).abs() < 1e-12 {
             let (first, second) = (pair[0].min(pair[1]), pair[0].max(pair[1]));
             return Err(AnalysisError::DuplicateExpiry { first, second });
         }
@@ -101,7 +101,8 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
     for &index in &order {
         let slice = &slices[index];
         let tau = slice.tau();
-        let smile = fit_smile(slice.quotes(), tau, options.smile).map_err(|source| AnalysisError::Smile { index, source })?;
+        let smile =
+            fit_smile(slice.quotes(), tau, options.smile).map_err(|source| AnalysisError::Smile { index, source })?;
         let replication = replicate(&smile.curve, smile.quoted_range, tau);
         let mut warnings: Vec<String> = slice.notes().to_vec();
         for (i, distance) in &smile.excluded {
@@ -171,7 +172,8 @@ fn check_calendar(out: &mut [SliceAnalysis]) {
             s.forward_variance = xi;
             if xi < 0.0 {
                 s.calendar_ok = false;
-                s.warnings.push(format!("calendar arbitrage: negative forward variance {xi:.3e} ending at this expiry"));
+                s.warnings
+                    .push(format!("calendar arbitrage: negative forward variance {xi:.3e} ending at this expiry"));
             }
         }
     }

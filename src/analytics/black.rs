@@ -111,11 +111,7 @@ pub fn implied_total_variance(k: f64, otm: f64) -> Result<f64, InversionError> {
             lo = s;
         }
         let vega = otm_price_vega(k, s);
-        let mut next = if price > 0.0 && vega > 0.0 {
-            s - (price.ln() - target) * price / vega
-        } else {
-            f64::NAN
-        };
+        let mut next = if price > 0.0 && vega > 0.0 { s - (price.ln() - target) * price / vega } else { f64::NAN };
         if !(next > lo && next < hi) {
             next = 0.5 * (lo + hi);
         }

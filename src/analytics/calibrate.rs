@@ -203,7 +203,16 @@ struct LeverageProblem<'a> {
     scale: &'a [f64],
     transform: &'a Transform,
     evaluations: &'a Cell<u64>,
+    /// Where the solver started; the ridge residuals pull towards it.
+    anchor: &'a [f64],
 }
+
+/// Weight of the ridge residuals `RIDGE * (u - u_start)` appended to the leverage
+/// residuals. They keep the Gauss-Newton normal matrix invertible when a parameter
+/// runs into a bound (where the logistic map flattens and its Jacobian column
+/// vanishes) at a bias of order `RIDGE^2` in the scaled cost, far below the 1e-6
+/// parameter accuracy asked of the fit.
+const RIDGE: f64 = 1e-7;
 
 impl LeverageProblem<'_> {
     fn residuals(&self, u: &[f64]) -> Result<Vec<f64>, ModelError> {
@@ -219,7 +228,8 @@ impl Operator for LeverageProblem<'_> {
     type Output = DVector<f64>;
 
     fn apply(&self, u: &Self::Param) -> Result<Self::Output, ArgminError> {
-        let r = self.residuals(u.as_slice()).map_err(|e| ArgminError::msg(e.to_string()))?;
+        let mut r = self.residuals(u.as_slice()).map_err(|e| ArgminError::msg(e.to_string()))?;
+        r.extend(u.iter().zip(self.anchor).map(|(x, a)| RIDGE * (x - a)));
         Ok(DVector::from_vec(r))
     }
 }
@@ -234,7 +244,10 @@ impl Jacobian for LeverageProblem<'_> {
         let lg = self.curve.total_leverage_with_gradient(&p).map_err(|e| ArgminError::msg(e.to_string()))?;
         let n = lg.total.len();
         let free = &self.transform.free;
-        Ok(DMatrix::from_fn(n, free.len(), |i, j| {
+        Ok(DMatrix::from_fn(n + free.len(), free.len(), |i, j| {
+            if i >= n {
+                return if i - n == j { RIDGE } else { 0.0 };
+            }
             let which = ParamName::ALL.iter().position(|nm| *nm == free[j]).unwrap_or(0);
             lg.gradient[i][which] * dxdu[j] * self.scale[i]
         }))
@@ -315,12 +328,13 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     };
     let scale: Vec<f64> = target.taus.iter().zip(&sigma).map(|(t, s)| 1.0 / (t * s)).collect();
     let evaluations = Cell::new(0u64);
-    let problem = LeverageProblem {
+    let mut problem = LeverageProblem {
         curve: &curve,
         market_total: &market_total,
         scale: &scale,
         transform: &transform,
         evaluations: &evaluations,
+        anchor: &[],
     };
 
     // Start: best point of a small grid over the free parameters.
@@ -352,6 +366,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         return failed("the model could not be evaluated at any starting point".into(), nan_params);
     };
     let u0 = transform.to_unbounded(&start);
+    problem.anchor = &u0;
 
     let mut message = None;
     let mut iterations = 0;
@@ -365,7 +380,8 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
                 iterations = iters;
                 if reason != Some(TerminationReason::SolverConverged) {
                     status = FitStatus::MaxIterations;
-                    message = Some(format!("Gauss-Newton stopped after {iters} iterations without meeting its tolerance"));
+                    message =
+                        Some(format!("Gauss-Newton stopped after {iters} iterations without meeting its tolerance"));
                 }
             }
             Err(e) => {
@@ -396,13 +412,9 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         Err(e) => return failed(e.to_string(), params),
     };
     let model_leverage_swap: Vec<f64> = model_total.iter().zip(&target.taus).map(|(l, t)| l / t).collect();
-    let leverage_rmse = (model_leverage_swap
-        .iter()
-        .zip(&target.leverage_swap)
-        .map(|(m, l)| (m - l).powi(2))
-        .sum::<f64>()
-        / n as f64)
-        .sqrt();
+    let leverage_rmse =
+        (model_leverage_swap.iter().zip(&target.leverage_swap).map(|(m, l)| (m - l).powi(2)).sum::<f64>() / n as f64)
+            .sqrt();
     let x = [params.hurst, params.rho_nu, params.mean_reversion];
     let active_bounds = free
         .iter()
@@ -462,11 +474,7 @@ fn run_nelder_mead(problem: &LeverageProblem<'_>, u0: &[f64]) -> SolverRun {
         simplex.push(v);
     }
     let solver = NelderMead::new(simplex).with_sd_tolerance(1e-20)?;
-    let res = Executor::new(*problem, solver)
-        .configure(|s| s.max_iters(2000))
-        .ctrlc(false)
-        .timer(false)
-        .run()?;
+    let res = Executor::new(*problem, solver).configure(|s| s.max_iters(2000)).ctrlc(false).timer(false).run()?;
     let iters = res.state.get_iter();
     let reason = res.state.get_termination_reason().cloned();
     let u = res.state.get_best_param().cloned().unwrap_or_else(|| u0.to_vec());

@@ -30,12 +30,8 @@ const WGK: [f64; 8] = [
     0.209_482_141_084_727_8,
 ];
 /// Gauss weights of the embedded 7-point rule, at `XGK[1], XGK[3], XGK[5], XGK[7]`.
-const WG: [f64; 4] = [
-    0.129_484_966_168_869_7,
-    0.279_705_391_489_276_7,
-    0.381_830_050_505_118_9,
-    0.417_959_183_673_469_4,
-];
+const WG: [f64; 4] =
+    [0.129_484_966_168_869_7, 0.279_705_391_489_276_7, 0.381_830_050_505_118_9, 0.417_959_183_673_469_4];
 
 /// What an integration reached: the value, the error estimate per component, the
 /// evaluations spent, and whether every component met its tolerance.
@@ -129,8 +125,7 @@ pub fn integrate<const N: usize, F: FnMut(f64) -> [f64; N]>(
                 error[c] += panel.error[c];
             }
         }
-        let allowed: [f64; N] =
-            std::array::from_fn(|c| tolerance.absolute.max(tolerance.relative * value[c].abs()));
+        let allowed: [f64; N] = std::array::from_fn(|c| tolerance.absolute.max(tolerance.relative * value[c].abs()));
         let converged = (0..N).all(|c| error[c] <= allowed[c]);
         if converged || evaluations + 30 > tolerance.max_evaluations || panels.is_empty() {
             return Quadrature { value, error, evaluations, converged };

@@ -85,9 +85,10 @@ fn check_strikes(strikes: impl Iterator<Item = f64>, errors: &mut Vec<SliceError
             continue;
         }
         if let Some(p) = prev {
-            if k == p {
+            let order = k.partial_cmp(&p);
+            if order == Some(std::cmp::Ordering::Equal) {
                 errors.push(SliceError::Quote { index, field: "strike", message: format!("duplicate strike {k}") });
-            } else if k < p {
+            } else if order == Some(std::cmp::Ordering::Less) {
                 errors.push(SliceError::Quote {
                     index,
                     field: "strike",
@@ -115,24 +116,42 @@ impl Slice {
         let mut notes = Vec::new();
         for (index, p) in points.iter().enumerate() {
             if !(p.vol.is_finite() && p.vol > 0.0) {
-                errors.push(SliceError::Quote { index, field: "vol", message: format!("must be positive, got {}", p.vol) });
+                errors.push(SliceError::Quote {
+                    index,
+                    field: "vol",
+                    message: format!("must be positive, got {}", p.vol),
+                });
             }
             for (field, v) in [("bid", p.bid), ("ask", p.ask)] {
                 if let Some(v) = v {
                     if !(v.is_finite() && v >= 0.0) {
-                        errors.push(SliceError::Quote { index, field, message: format!("must be non-negative, got {v}") });
+                        errors.push(SliceError::Quote {
+                            index,
+                            field,
+                            message: format!("must be non-negative, got {v}"),
+                        });
                     }
                 }
             }
             if let (Some(b), Some(a)) = (p.bid, p.ask) {
                 if b > a {
-                    errors.push(SliceError::Quote { index, field: "bid", message: format!("bid {b} is above ask {a}") });
+                    errors.push(SliceError::Quote {
+                        index,
+                        field: "bid",
+                        message: format!("bid {b} is above ask {a}"),
+                    });
                 } else if p.vol < b || p.vol > a {
-                    notes.push(format!("quote at strike {}: vol {} lies outside its bid/ask [{b}, {a}]", p.strike, p.vol));
+                    notes.push(format!(
+                        "quote at strike {}: vol {} lies outside its bid/ask [{b}, {a}]",
+                        p.strike, p.vol
+                    ));
                 }
             }
             if p.vol > super::tolerances::SUSPICIOUS_VOL {
-                notes.push(format!("quote at strike {}: vol {} looks like a percentage, not a decimal", p.strike, p.vol));
+                notes.push(format!(
+                    "quote at strike {}: vol {} looks like a percentage, not a decimal",
+                    p.strike, p.vol
+                ));
             }
         }
         if points.len() < 3 {
@@ -188,7 +207,11 @@ impl Slice {
             for (field, v) in [("call", p.call), ("put", p.put)] {
                 if let Some(v) = v {
                     if !(v.is_finite() && v >= 0.0) {
-                        errors.push(SliceError::Quote { index, field, message: format!("must be non-negative, got {v}") });
+                        errors.push(SliceError::Quote {
+                            index,
+                            field,
+                            message: format!("must be non-negative, got {v}"),
+                        });
                     }
                 }
             }
@@ -201,7 +224,8 @@ impl Slice {
             _ => {
                 return Err(vec![SliceError::Field {
                     field: "forward",
-                    message: "not given and not implied: put-call parity needs a call and a put at the same strikes".into(),
+                    message: "not given and not implied: put-call parity needs a call and a put at the same strikes"
+                        .into(),
                 }])
             }
         };

@@ -75,6 +75,7 @@ pub fn run_bench(input: &Path, runs: usize, out: &mut dyn Write) -> Result<(), C
         fit_us: timing(fit_samples),
     };
     let _ = wire::FieldPath::root();
-    let text = serde_json::to_string_pretty(&report).map_err(|e| CliError::Io { path: "stdout".into(), source: std::io::Error::other(e) })?;
+    let text = serde_json::to_string_pretty(&report)
+        .map_err(|e| CliError::Io { path: "stdout".into(), source: std::io::Error::other(e) })?;
     writeln!(out, "{text}").map_err(|source| CliError::Io { path: "stdout".into(), source })
 }

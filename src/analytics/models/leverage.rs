@@ -129,7 +129,11 @@ impl LeverageCurve {
 
     fn check(params: &LeverageParams) -> Result<f64, ModelError> {
         let alpha = params.hurst + 0.5;
-        if !(params.hurst > 0.0 && params.hurst <= 0.5 && params.rho_nu.is_finite() && params.mean_reversion.is_finite()) {
+        if !(params.hurst > 0.0
+            && params.hurst <= 0.5
+            && params.rho_nu.is_finite()
+            && params.mean_reversion.is_finite())
+        {
             return Err(ModelError::BadParams(format!("{params:?}")));
         }
         Ok(alpha)
@@ -166,7 +170,9 @@ impl LeverageCurve {
         let d_c = self.assemble(|g| phi[g].0 - c * phi[g].1);
         let d_lambda = self.assemble(|g| c * phi[g].1);
         let step = 1e-6;
-        let (lo, hi) = if params.hurst + step > 0.5 { (params.hurst - step, params.hurst) } else { (params.hurst - step, params.hurst + step) };
+        let one_sided = params.hurst + step > 0.5;
+        let (lo, hi) =
+            if one_sided { (params.hurst - step, params.hurst) } else { (params.hurst - step, params.hurst + step) };
         let mut phi_shift = Vec::with_capacity(self.gaps.len());
         let mut shifted = |h: f64| -> Result<Vec<f64>, ModelError> {
             let a = h + 0.5;
@@ -175,10 +181,8 @@ impl LeverageCurve {
             Ok(self.assemble(|g| c * phi_shift[g].0))
         };
         let l_lo = shifted(lo)?;
-        let l_hi = if hi == params.hurst { total.clone() } else { shifted(hi)? };
-        let gradient = (0..total.len())
-            .map(|i| [(l_hi[i] - l_lo[i]) / (hi - lo), d_c[i], d_lambda[i]])
-            .collect();
+        let l_hi = if one_sided { total.clone() } else { shifted(hi)? };
+        let gradient = (0..total.len()).map(|i| [(l_hi[i] - l_lo[i]) / (hi - lo), d_c[i], d_lambda[i]]).collect();
         Ok(LeverageWithGradient { total, gradient })
     }
 }

@@ -143,7 +143,8 @@ pub fn butterfly_scan(
         let p = curve.point(k);
         if !(p.w > 0.0) {
             // Non-positive total variance is itself an arbitrage (negative price of time).
-            let v = found.get_or_insert(ButterflyViolation { k_from: k, k_to: k, g_min: f64::NEG_INFINITY, k_at_min: k });
+            let v =
+                found.get_or_insert(ButterflyViolation { k_from: k, k_to: k, g_min: f64::NEG_INFINITY, k_at_min: k });
             v.k_to = k;
             continue;
         }

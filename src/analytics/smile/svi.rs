@@ -49,6 +49,9 @@ impl SviParams {
     }
 }
 
+/// A face of the `(c, d)` constraint square: an origin `(c, d)` and spanning directions.
+type CdFace<'a> = ((f64, f64), &'a [(f64, f64)]);
+
 /// Data of the inner (linear) problem.
 struct InnerData<'a> {
     k: &'a [f64],
@@ -127,7 +130,7 @@ impl InnerData<'_> {
             a >= -tol && a <= self.w_max + tol && c + tol >= d.abs() && c + d.abs() <= bound + tol
         };
         // Faces of the (c, d) square |d| <= c, c + |d| <= bound, as origin + span.
-        let cd_faces: [((f64, f64), &[(f64, f64)]); 9] = [
+        let cd_faces: [CdFace; 9] = [
             ((0.0, 0.0), &[(1.0, 0.0), (0.0, 1.0)]),
             ((0.0, 0.0), &[(1.0, 1.0)]),
             ((0.0, 0.0), &[(1.0, -1.0)]),
@@ -159,7 +162,8 @@ impl InnerData<'_> {
                     let mut g = [0.0; 3];
                     for i in 0..n {
                         for j in 0..n {
-                            h[i][j] = (0..3).map(|r| cols[i][r] * (0..3).map(|c| mat[r][c] * cols[j][c]).sum::<f64>()).sum();
+                            h[i][j] =
+                                (0..3).map(|r| cols[i][r] * (0..3).map(|c| mat[r][c] * cols[j][c]).sum::<f64>()).sum();
                         }
                         g[i] = (0..3).map(|r| cols[i][r] * (v[r] - mp0[r])).sum();
                     }
@@ -199,7 +203,8 @@ impl CostFunction for OuterProblem<'_> {
     fn cost(&self, p: &Self::Param) -> Result<f64, ArgminError> {
         let (m, ln_sigma) = (p[0], p[1]);
         // Outside the search box the cost rises steeply, which keeps Nelder–Mead inside.
-        let penalty = (self.m_range.0 - m).max(0.0) + (m - self.m_range.1).max(0.0)
+        let penalty = (self.m_range.0 - m).max(0.0)
+            + (m - self.m_range.1).max(0.0)
             + (-9.0 - ln_sigma).max(0.0)
             + (ln_sigma - 2.0).max(0.0);
         let sigma = ln_sigma.clamp(-9.0, 2.0).exp();
@@ -240,14 +245,8 @@ fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64) -> Result<Svi
     let (_, m0, ls0) = start;
     let simplex = vec![vec![m0, ls0], vec![m0 + 0.1 * span, ls0], vec![m0, ls0 + 0.4]];
     let problem = OuterProblem { inner: &inner, m_range };
-    let solver = NelderMead::new(simplex)
-        .with_sd_tolerance(1e-16)
-        .map_err(|_| SmileError::TooFewQuotes(k.len()))?;
-    let result = Executor::new(problem, solver)
-        .configure(|state| state.max_iters(400))
-        .ctrlc(false)
-        .timer(false)
-        .run();
+    let solver = NelderMead::new(simplex).with_sd_tolerance(1e-16).map_err(|_| SmileError::TooFewQuotes(k.len()))?;
+    let result = Executor::new(problem, solver).configure(|state| state.max_iters(400)).ctrlc(false).timer(false).run();
     let (m, ln_sigma) = match result {
         Ok(res) => match res.state.best_param.as_ref() {
             Some(p) => (p[0], p[1]),
@@ -278,8 +277,7 @@ pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
     let half_spread: Vec<f64> =
         quotes.iter().map(|q| q.half_spread.filter(|h| *h > 0.0).unwrap_or(default_spread)).collect();
     // A vol error e maps to a total-variance error of about 2 vol tau e.
-    let mut weight: Vec<f64> =
-        (0..n).map(|i| 1.0 / (2.0 * quotes[i].vol * tau * half_spread[i]).powi(2)).collect();
+    let mut weight: Vec<f64> = (0..n).map(|i| 1.0 / (2.0 * quotes[i].vol * tau * half_spread[i]).powi(2)).collect();
     let norm = weight.iter().sum::<f64>() / n as f64;
     weight.iter_mut().for_each(|x| *x /= norm);
     let atm_index = k.iter().enumerate().min_by(|a, b| a.1.abs().total_cmp(&b.1.abs())).map_or(0, |(i, _)| i);

@@ -1,0 +1,134 @@
+//! The `logstrip` binary end to end: exit codes, JSON output, one line per input problem.
+
+use std::io::Write;
+use std::process::{Command, Output, Stdio};
+
+fn logstrip(args: &[&str], stdin: Option<&str>) -> Output {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_logstrip"))
+        .args(args)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("binary starts");
+    if let Some(text) = stdin {
+        child.stdin.take().expect("stdin").write_all(text.as_bytes()).expect("write stdin");
+    } else {
+        drop(child.stdin.take());
+    }
+    child.wait_with_output().expect("binary finishes")
+}
+
+#[test]
+fn analyze_demo_snapshot() {
+    let out = logstrip(&["analyze", "--input", "demo-data/kestrel50-snapshot.json"], None);
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON on stdout");
+    let curve = doc["curve"].as_array().expect("curve");
+    assert_eq!(curve.len(), 35);
+    let taus: Vec<f64> = curve.iter().map(|c| c["tau"].as_f64().expect("tau")).collect();
+    assert!(taus.windows(2).all(|w| w[0] < w[1]), "curve sorted by tau");
+    for c in curve {
+        for field in
+            ["variance_swap", "variance_swap_vol", "gamma_swap", "gamma_swap_vol", "leverage_swap", "forward_variance"]
+        {
+            assert!(c[field].is_number(), "{field} missing in {c}");
+        }
+        let (vs, gs, ls) = (c["variance_swap"].as_f64(), c["gamma_swap"].as_f64(), c["leverage_swap"].as_f64());
+        let (vs, gs, ls) = (vs.expect("vs"), gs.expect("gs"), ls.expect("ls"));
+        // leverage = gamma - variance to rounding (integrated separately; 1e-12 relative asked).
+        assert!((gs - vs - ls).abs() < 1e-11 * vs, "LS {ls} vs GS-VS {}", gs - vs);
+        for field in ["points", "wing_share", "smile_rmse_vol", "butterfly_ok", "calendar_ok", "warnings"] {
+            assert!(!c["quality"][field].is_null(), "quality.{field} missing");
+        }
+    }
+    let fit = &doc["fit"];
+    assert_eq!(fit["model"], "rough_heston");
+    for field in ["hurst", "rho_nu", "mean_reversion"] {
+        assert!(fit["params"][field].is_number(), "params.{field}");
+    }
+    assert!(["converged", "max_iterations", "failed"].contains(&fit["status"].as_str().expect("status")));
+    assert_eq!(fit["model_leverage_swap"].as_array().expect("model LS").len(), 35);
+    // The demo carries one off-market quote; it is reported, not silently dropped.
+    let warned = curve.iter().any(|c| {
+        c["quality"]["warnings"]
+            .as_array()
+            .expect("warnings")
+            .iter()
+            .any(|w| w.as_str().unwrap_or("").contains("off-market"))
+    });
+    assert!(warned, "the off-market demo quote was not reported");
+}
+
+#[test]
+fn fit_demo_swaps() {
+    let out = logstrip(&["fit", "--input", "demo-data/kestrel50-swaps.json"], None);
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    assert_eq!(doc["curve"].as_array().expect("curve").len(), 5);
+    assert!(doc["fit"]["convexity"].as_array().is_some(), "nu given: convexity expected");
+}
+
+#[test]
+fn bad_input_exits_2_with_one_line_per_problem() {
+    let text = r#"{"underlying":"KESTREL50","as_of":"2026-11-30T15:30:00Z","slices":[
+        {"tau":0.5,"forward":100,"points":[{"strike":90,"vol":0.2},{"strike":100,"vol":0.2},{"strike":110,"vol":0.2}]},
+        {"tau":-1,"forward":100,"points":[{"strike":90,"vol":0.2},{"strike":100,"vol":0.2},{"strike":110,"vol":0.2}]},
+        {"tau":1,"forward":100,"points":[{"strike":90,"vol":0.2},{"strike":100,"vol":0.2}]},
+        {"tau":2,"forward":100,"points":[{"strike":90,"vol":0.2},{"strike":100,"vol":0.2},{"strike":95,"vol":0.2},{"strike":120,"vol":0.2},{"strike":130,"vol":0.2},{"strike":140,"vol":0.2},{"strike":150,"vol":0.2},{"strike":160,"vol":-0.2}]},
+        {"tau":0.5,"forward":100,"points":[{"strike":90,"vol":0.2},{"strike":100,"vol":0.2},{"strike":110,"vol":0.2}]}
+    ]}"#;
+    let out = logstrip(&["analyze", "--input", "-"], Some(text));
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    let lines: Vec<&str> = stderr.lines().collect();
+    for expected in [
+        "slices[1].tau: must be positive, got -1",
+        "slices[2].points: needs at least 3 usable quotes, got 2",
+        "slices[3].points[2].strike: strikes must be increasing, 95 follows 100",
+        "slices[3].points[7].vol: must be positive, got -0.2",
+        "slices[4].tau: same expiry as slices[0]",
+    ] {
+        assert!(lines.contains(&expected), "missing line {expected:?} in:\n{stderr}");
+    }
+    assert_eq!(lines.len(), 5, "{stderr}");
+}
+
+#[test]
+fn malformed_and_misspelt_input_name_the_problem() {
+    let out = logstrip(&["analyze", "--input", "-"], Some("{\"underlying\": \"X\", "));
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("EOF"), "{}", String::from_utf8_lossy(&out.stderr));
+
+    let typo = r#"{"underlying":"X","as_of":"2026-11-30T15:30:00Z","slices":[{"tau":1,"forwrd":100,"points":[]}]}"#;
+    let out = logstrip(&["analyze", "--input", "-"], Some(typo));
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.starts_with("slices[0].forwrd: unknown field"), "{stderr}");
+
+    let wrong_type = r#"{"underlying":"X","as_of":"2026-11-30T15:30:00Z","slices":[{"tau":1,"forward":100,"points":[{"strike":1,"vol":"high"}]}]}"#;
+    let out = logstrip(&["analyze", "--input", "-"], Some(wrong_type));
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.starts_with("slices[0].points[0].vol: invalid type"), "{stderr}");
+}
+
+#[test]
+fn missing_file_exits_1() {
+    let out = logstrip(&["analyze", "--input", "no/such/file.json"], None);
+    assert_eq!(out.status.code(), Some(1));
+}
+
+#[test]
+fn bench_prints_timings() {
+    let out = logstrip(&["bench", "--input", "demo-data/kestrel50-snapshot.json", "--runs", "2"], None);
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    assert_eq!(doc["runs"], 2);
+    for key in ["analyze_us", "fit_us"] {
+        for stat in ["median", "min"] {
+            assert!(doc[key][stat].as_f64().is_some_and(|v| v > 0.0), "{key}.{stat}");
+        }
+    }
+}
