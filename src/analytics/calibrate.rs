@@ -4,18 +4,17 @@
 //!
 //! Bounded parameters are mapped to the real line by a logistic transform
 //! `x = lo + (hi - lo) / (1 + e^-u)` (chain rule in the Jacobian) and fitted by
-//! argmin's Gauss–Newton with a backtracking line search, started from the best
-//! point of a small grid. If the derivative-based method fails (a singular normal
-//! matrix), Nelder–Mead on the same transform takes over. The outcome is data:
+//! Levenberg–Marquardt running in argmin's executor ([`super::levenberg`]), started
+//! from the best point of a small grid. If the model cannot be evaluated along the
+//! way, argmin's Nelder–Mead on the same transform takes over. The outcome is data:
 //! status, iterations, evaluations, residual and active bounds.
 
+use super::levenberg::LevenbergMarquardt;
 use super::models::leverage::{LeverageCurve, LeverageParams, ModelError};
 use super::quadrature::{integrate, QuadratureTolerance};
 use super::special::mittag_leffler::mittag_leffler;
 use super::tolerances::{ACTIVE_BOUND_FRACTION, CALIBRATION_COST_REL_TOL, CALIBRATION_MAX_ITERATIONS};
 use argmin::core::{CostFunction, Error as ArgminError, Executor, Jacobian, Operator, State, TerminationReason};
-use argmin::solver::gaussnewton::GaussNewtonLS;
-use argmin::solver::linesearch::{condition::ArmijoCondition, BacktrackingLineSearch};
 use argmin::solver::neldermead::NelderMead;
 use nalgebra::{DMatrix, DVector};
 use std::cell::Cell;
@@ -203,16 +202,7 @@ struct LeverageProblem<'a> {
     scale: &'a [f64],
     transform: &'a Transform,
     evaluations: &'a Cell<u64>,
-    /// Where the solver started; the ridge residuals pull towards it.
-    anchor: &'a [f64],
 }
-
-/// Weight of the ridge residuals `RIDGE * (u - u_start)` appended to the leverage
-/// residuals. They keep the Gauss-Newton normal matrix invertible when a parameter
-/// runs into a bound (where the logistic map flattens and its Jacobian column
-/// vanishes) at a bias of order `RIDGE^2` in the scaled cost, far below the 1e-6
-/// parameter accuracy asked of the fit.
-const RIDGE: f64 = 1e-7;
 
 impl LeverageProblem<'_> {
     fn residuals(&self, u: &[f64]) -> Result<Vec<f64>, ModelError> {
@@ -228,8 +218,7 @@ impl Operator for LeverageProblem<'_> {
     type Output = DVector<f64>;
 
     fn apply(&self, u: &Self::Param) -> Result<Self::Output, ArgminError> {
-        let mut r = self.residuals(u.as_slice()).map_err(|e| ArgminError::msg(e.to_string()))?;
-        r.extend(u.iter().zip(self.anchor).map(|(x, a)| RIDGE * (x - a)));
+        let r = self.residuals(u.as_slice()).map_err(|e| ArgminError::msg(e.to_string()))?;
         Ok(DVector::from_vec(r))
     }
 }
@@ -244,10 +233,7 @@ impl Jacobian for LeverageProblem<'_> {
         let lg = self.curve.total_leverage_with_gradient(&p).map_err(|e| ArgminError::msg(e.to_string()))?;
         let n = lg.total.len();
         let free = &self.transform.free;
-        Ok(DMatrix::from_fn(n + free.len(), free.len(), |i, j| {
-            if i >= n {
-                return if i - n == j { RIDGE } else { 0.0 };
-            }
+        Ok(DMatrix::from_fn(n, free.len(), |i, j| {
             let which = ParamName::ALL.iter().position(|nm| *nm == free[j]).unwrap_or(0);
             lg.gradient[i][which] * dxdu[j] * self.scale[i]
         }))
@@ -328,13 +314,12 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     };
     let scale: Vec<f64> = target.taus.iter().zip(&sigma).map(|(t, s)| 1.0 / (t * s)).collect();
     let evaluations = Cell::new(0u64);
-    let mut problem = LeverageProblem {
+    let problem = LeverageProblem {
         curve: &curve,
         market_total: &market_total,
         scale: &scale,
         transform: &transform,
         evaluations: &evaluations,
-        anchor: &[],
     };
 
     // Start: best point of a small grid over the free parameters.
@@ -362,18 +347,17 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             }
         }
     }
-    let Some((start_cost, start)) = best else {
+    let Some((_, start)) = best else {
         return failed("the model could not be evaluated at any starting point".into(), nan_params);
     };
     let u0 = transform.to_unbounded(&start);
-    problem.anchor = &u0;
 
     let mut message = None;
     let mut iterations = 0;
     let mut status = FitStatus::Converged;
     let mut u_best = u0.clone();
     if !free.is_empty() {
-        let gn = run_gauss_newton(&problem, &u0, start_cost);
+        let gn = run_levenberg_marquardt(&problem, &u0);
         match gn {
             Ok((u, iters, reason)) => {
                 u_best = u;
@@ -396,11 +380,11 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
                             status = FitStatus::MaxIterations;
                             "stopped at its iteration cap"
                         };
-                        message = Some(format!("Gauss-Newton failed ({e}); Nelder-Mead {how}"));
+                        message = Some(format!("Levenberg-Marquardt failed ({e}); Nelder-Mead {how}"));
                     }
                     Err(e2) => {
                         status = FitStatus::Failed;
-                        message = Some(format!("Gauss-Newton failed ({e}); Nelder-Mead failed ({e2})"));
+                        message = Some(format!("Levenberg-Marquardt failed ({e}); Nelder-Mead failed ({e2})"));
                     }
                 }
             }
@@ -451,10 +435,8 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
 
 type SolverRun = Result<(Vec<f64>, u64, Option<TerminationReason>), ArgminError>;
 
-fn run_gauss_newton(problem: &LeverageProblem<'_>, u0: &[f64], start_cost: f64) -> SolverRun {
-    let linesearch = BacktrackingLineSearch::new(ArmijoCondition::new(1e-4)?);
-    let tol = (CALIBRATION_COST_REL_TOL * start_cost.sqrt()).max(1e-15);
-    let solver = GaussNewtonLS::new(linesearch).with_tolerance(tol)?;
+fn run_levenberg_marquardt(problem: &LeverageProblem<'_>, u0: &[f64]) -> SolverRun {
+    let solver = LevenbergMarquardt::new(CALIBRATION_COST_REL_TOL);
     let res = Executor::new(*problem, solver)
         .configure(|s| s.param(DVector::from_vec(u0.to_vec())).max_iters(CALIBRATION_MAX_ITERATIONS))
         .ctrlc(false)

@@ -9,6 +9,7 @@
 pub mod analysis;
 pub mod black;
 pub mod calibrate;
+pub mod levenberg;
 pub mod models;
 pub mod quadrature;
 pub mod replication;

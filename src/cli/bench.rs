@@ -4,7 +4,6 @@
 use super::{read_input, CliError};
 use crate::analytics::analysis::{analyze, AnalyzeOptions};
 use crate::analytics::calibrate::{fit_leverage, FitSpec, LeverageTarget};
-use crate::wire;
 use serde::Serialize;
 use std::io::Write;
 use std::path::Path;
@@ -30,6 +29,8 @@ pub struct BenchReport {
     pub expiries: usize,
     /// Smiles, replication, quality checks and the fit, per run.
     pub analyze_us: Timing,
+    /// Smiles, replication and quality checks without the fit, per run.
+    pub curve_us: Timing,
     /// The model fit alone, per run.
     pub fit_us: Timing,
 }
@@ -56,6 +57,8 @@ pub fn run_bench(input: &Path, runs: usize, out: &mut dyn Write) -> Result<(), C
         leverage_swap: first.slices.iter().map(|s| s.replication.levels.leverage).collect(),
         uncertainty: None,
     };
+    let curve_only = AnalyzeOptions { smile: snapshot.options.smile, fit: None };
+    let mut curve_samples = Vec::with_capacity(runs);
     let mut analyze_samples = Vec::with_capacity(runs);
     let mut fit_samples = Vec::with_capacity(runs);
     for _ in 0..runs {
@@ -63,6 +66,10 @@ pub fn run_bench(input: &Path, runs: usize, out: &mut dyn Write) -> Result<(), C
         let result = analyze(&snapshot.slices, &options);
         analyze_samples.push(t0.elapsed().as_secs_f64() * 1e6);
         std::hint::black_box(result.is_ok());
+        let tc = Instant::now();
+        let curve = analyze(&snapshot.slices, &curve_only);
+        curve_samples.push(tc.elapsed().as_secs_f64() * 1e6);
+        std::hint::black_box(curve.is_ok());
         let t1 = Instant::now();
         let fit = fit_leverage(&target, &spec);
         fit_samples.push(t1.elapsed().as_secs_f64() * 1e6);
@@ -72,9 +79,9 @@ pub fn run_bench(input: &Path, runs: usize, out: &mut dyn Write) -> Result<(), C
         runs,
         expiries: snapshot.slices.len(),
         analyze_us: timing(analyze_samples),
+        curve_us: timing(curve_samples),
         fit_us: timing(fit_samples),
     };
-    let _ = wire::FieldPath::root();
     let text = serde_json::to_string_pretty(&report)
         .map_err(|e| CliError::Io { path: "stdout".into(), source: std::io::Error::other(e) })?;
     writeln!(out, "{text}").map_err(|source| CliError::Io { path: "stdout".into(), source })
