@@ -5,8 +5,14 @@
 //! the weighted-harmonic-mean form (SIAM J. Sci. Stat. Comput., 1984, "A method for
 //! constructing local monotone piecewise cubic interpolants"), the same choice as
 //! scipy's `PchipInterpolator`: no overshoot between quotes, so total variance stays
-//! positive. Beyond the quotes the curve continues linearly with the end slope,
-//! clipped to `[0, MAX_WING_SLOPE]` outward (Lee 2004, Math. Finance 14(3)).
+//! positive. Beyond the quotes each wing follows `a + b|k| + c sqrt|k|`, least
+//! squares on the outermost quotes: linear growth with a square-root correction is
+//! the leading behaviour of total variance far out in stochastic-volatility models
+//! (Math. Finance, 2010, "Asymptotic formulas with error estimates for call pricing
+//! functions and the implied volatility at extreme strikes"). It is shifted to meet
+//! the cubic at the last quote, and its slope must stay in `[0, MAX_WING_SLOPE]`
+//! outward (Lee 2004, Math. Finance 14(3)); otherwise the wing continues linearly
+//! with the end slope, clipped to that range.
 
 use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
 use crate::analytics::tolerances::MAX_WING_SLOPE;
@@ -103,24 +109,96 @@ fn end_slope(h0: f64, h1: f64, m0: f64, m1: f64) -> f64 {
     }
 }
 
-/// Monotone cubic between the quotes, linear wings outside.
+/// Quotes per wing used to fit its shape.
+pub const WING_FIT_QUOTES: usize = 5;
+
+/// One wing beyond the quotes: `w(k) = w_edge + b (|k| - |k_e|) + c (sqrt|k| - sqrt|k_e|)`,
+/// or linear when `c = 0`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Wing {
+    /// Log-moneyness of the outermost quote.
+    pub edge: f64,
+    /// Total variance there.
+    pub w_edge: f64,
+    /// Asymptotic slope magnitude `b`.
+    pub slope: f64,
+    /// Square-root coefficient `c`.
+    pub sqrt_coef: f64,
+}
+
+impl Wing {
+    fn point(&self, k: f64) -> SmilePoint {
+        let sign = if self.edge < 0.0 { -1.0 } else { 1.0 };
+        let (x, x_e) = (k.abs(), self.edge.abs());
+        if self.sqrt_coef == 0.0 || x <= 0.0 {
+            return SmilePoint { w: self.w_edge + self.slope * (x - x_e), dw: sign * self.slope, d2w: 0.0 };
+        }
+        let r = x.sqrt();
+        SmilePoint {
+            w: self.w_edge + self.slope * (x - x_e) + self.sqrt_coef * (r - x_e.sqrt()),
+            dw: sign * (self.slope + 0.5 * self.sqrt_coef / r),
+            d2w: -0.25 * self.sqrt_coef / (x * r),
+        }
+    }
+
+    /// Fits `a + b|k| + c sqrt|k|` to the given quotes of one side (all on the same
+    /// side of zero as `edge`); `None` when the shape is not admissible.
+    fn fit(k: &[f64], w: &[f64], edge: f64, w_edge: f64) -> Option<Self> {
+        if k.len() < 3 || k.iter().any(|x| x * edge <= 0.0) {
+            return None;
+        }
+        // Normal equations of the basis [1, |k|, sqrt|k|].
+        let mut m = [[0.0; 3]; 3];
+        let mut v = [0.0; 3];
+        for (&x, &y) in k.iter().zip(w) {
+            let phi = [1.0, x.abs(), x.abs().sqrt()];
+            for r in 0..3 {
+                for c in 0..3 {
+                    m[r][c] += phi[r] * phi[c];
+                }
+                v[r] += phi[r] * y;
+            }
+        }
+        let sol = super::svi::solve_small(3, m, v)?;
+        let (b, c) = (sol[1], sol[2]);
+        let wing = Self { edge, w_edge, slope: b, sqrt_coef: c };
+        let edge_slope = b + 0.5 * c / edge.abs().sqrt();
+        let admissible = b.is_finite() && c.is_finite() && (0.0..=MAX_WING_SLOPE).contains(&b)
+            && (0.0..=MAX_WING_SLOPE).contains(&edge_slope);
+        admissible.then_some(wing)
+    }
+}
+
+/// Monotone cubic between the quotes, explicit wings outside.
 #[derive(Debug, Clone, PartialEq)]
 pub struct MonotoneSmile {
     cubic: MonotoneCubic,
-    /// Left wing slope as a magnitude (total variance rises by this per unit of -k).
-    left_slope: f64,
-    /// Right wing slope.
-    right_slope: f64,
+    left: Wing,
+    right: Wing,
 }
 
 impl MonotoneSmile {
-    /// Interpolant with wings continuing the end slopes, clipped so total variance
-    /// never falls outward and the slope stays below the moment bound.
+    /// Interpolant with fitted wings (see the module docs), falling back to the end
+    /// slopes clipped so total variance never falls outward and the slope stays
+    /// below the moment bound.
     pub fn new(cubic: MonotoneCubic) -> Self {
         let (d_first, d_last) = cubic.end_slopes();
-        let left_slope = (-d_first).clamp(0.0, MAX_WING_SLOPE);
-        let right_slope = d_last.clamp(0.0, MAX_WING_SLOPE);
-        Self { cubic, left_slope, right_slope }
+        let n = cubic.k.len();
+        let m = WING_FIT_QUOTES.min(n);
+        let (k0, w0, k1, w1) = (cubic.k[0], cubic.w[0], cubic.k[n - 1], cubic.w[n - 1]);
+        let left = Wing::fit(&cubic.k[..m], &cubic.w[..m], k0, w0).unwrap_or(Wing {
+            edge: k0,
+            w_edge: w0,
+            slope: (-d_first).clamp(0.0, MAX_WING_SLOPE),
+            sqrt_coef: 0.0,
+        });
+        let right = Wing::fit(&cubic.k[n - m..], &cubic.w[n - m..], k1, w1).unwrap_or(Wing {
+            edge: k1,
+            w_edge: w1,
+            slope: d_last.clamp(0.0, MAX_WING_SLOPE),
+            sqrt_coef: 0.0,
+        });
+        Self { cubic, left, right }
     }
 
     /// Interpolation nodes.
@@ -128,9 +206,9 @@ impl MonotoneSmile {
         self.cubic.nodes()
     }
 
-    /// Wing slopes (left as a magnitude, right).
+    /// Asymptotic wing slopes (left as a magnitude, right).
     pub fn wing_slopes(&self) -> (f64, f64) {
-        (self.left_slope, self.right_slope)
+        (self.left.slope, self.right.slope)
     }
 
     /// Value and derivatives anywhere: the cubic inside, the wings outside.
@@ -138,14 +216,10 @@ impl MonotoneSmile {
         if let Some(p) = self.cubic.point(k) {
             return p;
         }
-        let nodes = self.cubic.nodes();
-        let (k0, k1) = (nodes[0], nodes[nodes.len() - 1]);
-        if k < k0 {
-            let w0 = self.cubic.w[0];
-            SmilePoint { w: w0 + self.left_slope * (k0 - k), dw: -self.left_slope, d2w: 0.0 }
+        if k < self.cubic.k[0] {
+            self.left.point(k)
         } else {
-            let w1 = self.cubic.w[self.cubic.w.len() - 1];
-            SmilePoint { w: w1 + self.right_slope * (k - k1), dw: self.right_slope, d2w: 0.0 }
+            self.right.point(k)
         }
     }
 }

@@ -10,6 +10,14 @@ use crate::analytics::tolerances::{DEFAULT_HALF_SPREAD_VOL, MAX_WING_SLOPE, OUTL
 use argmin::core::{CostFunction, Error as ArgminError, Executor};
 use argmin::solver::neldermead::NelderMead;
 
+/// Ridge on the wing slopes `s_L^2 + s_R^2`, in units where a slope `s` costs like
+/// every quote missing by `s` times the ATM standard deviation in total variance.
+/// Few noisy quotes near the money leave the wings to chance: on the QuantLib
+/// Heston fixture with 15 quotes over +-1.5 standard deviations and +-0.5 vol
+/// point noise, 40 noise draws gave a worst variance-swap error of 178% without it
+/// and 4.9% with it (p90 3.3%), at a bias below 1.2%. Chosen by that experiment.
+pub const SVI_WING_RIDGE: f64 = 1e-3;
+
 /// Raw SVI parameters (total variance form).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct SviParams {
@@ -59,11 +67,12 @@ struct InnerData<'a> {
     weight: &'a [f64],
     w_max: f64,
     slope_cap: f64,
+    slope_penalty: f64,
 }
 
 /// Solves `A t = r` for a symmetric `n x n` system (n <= 3) by Gaussian elimination
 /// with partial pivoting; `None` when (numerically) singular.
-fn solve_small(n: usize, mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Option<[f64; 3]> {
+pub(crate) fn solve_small(n: usize, mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Option<[f64; 3]> {
     let scale = (0..n).map(|i| a[i][i].abs()).fold(0.0, f64::max);
     if !(scale > 0.0) || !scale.is_finite() {
         return None;
@@ -97,22 +106,31 @@ fn solve_small(n: usize, mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Option<[f64; 
 impl InnerData<'_> {
     /// Best `(a, d, c)` for given `(m, sigma)` and its weighted squared error.
     fn solve(&self, m: f64, sigma: f64) -> (f64, [f64; 3]) {
-        // Normal equations of the basis [1, y, sqrt(1 + y^2)], y = (k - m)/sigma.
-        let mut mat = [[0.0; 3]; 3];
-        let mut v = [0.0; 3];
-        let mut s = 0.0;
+        // Normal equations of the basis [1, y, sqrt(1 + y^2)], y = (k - m)/sigma
+        // (symmetric: six sums, not nine).
+        let inv_sigma = 1.0 / sigma;
+        let (mut s11, mut s1y, mut s1z, mut syy, mut syz, mut szz) = (0.0, 0.0, 0.0, 0.0, 0.0, 0.0);
+        let (mut v1, mut vy, mut vz, mut s) = (0.0, 0.0, 0.0, 0.0);
         for i in 0..self.k.len() {
-            let y = (self.k[i] - m) / sigma;
-            let phi = [1.0, y, (1.0 + y * y).sqrt()];
+            let y = (self.k[i] - m) * inv_sigma;
+            let z = (1.0 + y * y).sqrt();
             let om = self.weight[i];
-            for r in 0..3 {
-                for c in 0..3 {
-                    mat[r][c] += om * phi[r] * phi[c];
-                }
-                v[r] += om * phi[r] * self.w[i];
-            }
-            s += om * self.w[i] * self.w[i];
+            let (oy, oz, ow) = (om * y, om * z, om * self.w[i]);
+            s11 += om;
+            s1y += oy;
+            s1z += oz;
+            syy += oy * y;
+            syz += oy * z;
+            szz += oz * z;
+            v1 += ow;
+            vy += ow * y;
+            vz += ow * z;
+            s += ow * self.w[i];
         }
+        // Ridge on the wing slopes: s_L^2 + s_R^2 = 2 (c^2 + d^2) / sigma^2 in (a, d, c).
+        let ridge = 2.0 * self.slope_penalty * inv_sigma * inv_sigma;
+        let mat = [[s11, s1y, s1z], [s1y, syy + ridge, syz], [s1z, syz, szz + ridge]];
+        let v = [v1, vy, vz];
         let objective = |x: &[f64; 3]| {
             let mut f = s;
             for r in 0..3 {
@@ -147,14 +165,16 @@ impl InnerData<'_> {
             for (a_index, a_fixed) in a_faces.iter().enumerate() {
                 // x = p0 + P t, x = (a, d, c).
                 let p0 = [a_fixed.unwrap_or(0.0), origin.1, origin.0];
-                let mut cols: Vec<[f64; 3]> = Vec::with_capacity(3);
+                let mut cols = [[0.0; 3]; 3];
+                let mut n = 0;
                 if a_fixed.is_none() {
-                    cols.push([1.0, 0.0, 0.0]);
+                    cols[n] = [1.0, 0.0, 0.0];
+                    n += 1;
                 }
                 for (dc, dd) in span.iter() {
-                    cols.push([0.0, *dd, *dc]);
+                    cols[n] = [0.0, *dd, *dc];
+                    n += 1;
                 }
-                let n = cols.len();
                 let mut x = p0;
                 if n > 0 {
                     let mp0: [f64; 3] = std::array::from_fn(|r| (0..3).map(|c| mat[r][c] * p0[c]).sum());
@@ -168,7 +188,7 @@ impl InnerData<'_> {
                         g[i] = (0..3).map(|r| cols[i][r] * (v[r] - mp0[r])).sum();
                     }
                     let Some(t) = solve_small(n, h, g) else { continue };
-                    for (i, col) in cols.iter().enumerate() {
+                    for (i, col) in cols.iter().take(n).enumerate() {
                         for r in 0..3 {
                             x[r] += t[i] * col[r];
                         }
@@ -225,11 +245,13 @@ fn params_from(m: f64, sigma: f64, x: [f64; 3]) -> SviParams {
 /// Fits SVI to the quotes at `use_mask` with weights; returns parameters and cost.
 fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64) -> Result<SviParams, SmileError> {
     let w_max = w.iter().cloned().fold(0.0, f64::max);
-    let inner = InnerData { k, w, weight, w_max, slope_cap: MAX_WING_SLOPE };
+    let n_eff = weight.iter().filter(|x| **x > 0.0).count() as f64;
+    let slope_penalty = SVI_WING_RIDGE * n_eff * atm_sd * atm_sd;
+    let inner = InnerData { k, w, weight, w_max, slope_cap: MAX_WING_SLOPE, slope_penalty };
     let k_lo = k.iter().cloned().fold(f64::INFINITY, f64::min);
     let k_hi = k.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
     let span = (k_hi - k_lo).max(1e-3);
-    let m_range = (k_lo - span, k_hi + span);
+    let m_range = (k_lo, k_hi);
     // Coarse grid for the start (the outer problem is not convex).
     let mut start = (f64::INFINITY, 0.0, 0.0);
     for i in 0..5 {
@@ -242,10 +264,14 @@ fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64) -> Result<Svi
             }
         }
     }
-    let (_, m0, ls0) = start;
+    let (f0, m0, ls0) = start;
+    // Nelder-Mead stops when the costs across the simplex agree to 1e-12 of the
+    // starting cost: parameters then agree to about 1e-6 relative, far inside the
+    // quotes' own noise.
+    let sd_tolerance = (1e-12 * f0).max(1e-300);
     let simplex = vec![vec![m0, ls0], vec![m0 + 0.1 * span, ls0], vec![m0, ls0 + 0.4]];
     let problem = OuterProblem { inner: &inner, m_range };
-    let solver = NelderMead::new(simplex).with_sd_tolerance(1e-16).map_err(|_| SmileError::TooFewQuotes(k.len()))?;
+    let solver = NelderMead::new(simplex).with_sd_tolerance(sd_tolerance).map_err(|_| SmileError::TooFewQuotes(k.len()))?;
     let result = Executor::new(problem, solver).configure(|state| state.max_iters(400)).ctrlc(false).timer(false).run();
     let (m, ln_sigma) = match result {
         Ok(res) => match res.state.best_param.as_ref() {
@@ -269,6 +295,28 @@ fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64) -> Result<Svi
 /// # Errors
 /// [`SmileError`] for unusable quotes (see [`super::fit_smile`]).
 pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
+    fit_anchored(quotes, tau, &[])
+}
+
+/// A prior point of total variance beyond the quotes (from the surface fit), with
+/// the uncertainty in vol it is given.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WingAnchor {
+    /// Log-moneyness.
+    pub k: f64,
+    /// Total variance.
+    pub w: f64,
+    /// One-standard-deviation uncertainty in vol.
+    pub half_spread: f64,
+}
+
+/// [`fit`] with pseudo-quotes beyond the quoted range that hold the wings where the
+/// quotes say little; they enter the weighted least squares like quotes with their
+/// own uncertainty and never count as quotes in `rmse_vol` or the screening.
+///
+/// # Errors
+/// [`SmileError`] for unusable quotes (see [`super::fit_smile`]).
+pub fn fit_anchored(quotes: &[SmileQuote], tau: f64, anchors: &[WingAnchor]) -> Result<FittedSmile, SmileError> {
     let n = quotes.len();
     let k: Vec<f64> = quotes.iter().map(|q| q.k).collect();
     let w: Vec<f64> = quotes.iter().map(|q| q.vol * q.vol * tau).collect();
@@ -280,6 +328,15 @@ pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
     let mut weight: Vec<f64> = (0..n).map(|i| 1.0 / (2.0 * quotes[i].vol * tau * half_spread[i]).powi(2)).collect();
     let norm = weight.iter().sum::<f64>() / n as f64;
     weight.iter_mut().for_each(|x| *x /= norm);
+    // Anchors extend the data arrays after the quotes.
+    let mut k = k;
+    let mut w = w;
+    for a in anchors {
+        let vol = (a.w.max(1e-12) / tau).sqrt();
+        k.push(a.k);
+        w.push(a.w);
+        weight.push(1.0 / (2.0 * vol * tau * a.half_spread).powi(2) / norm);
+    }
     let atm_index = k.iter().enumerate().min_by(|a, b| a.1.abs().total_cmp(&b.1.abs())).map_or(0, |(i, _)| i);
     let atm_sd = w[atm_index].sqrt();
 
@@ -312,7 +369,7 @@ pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
     let curve = SmileCurve::Svi(params);
     let excluded_set: Vec<usize> = candidates.iter().map(|c| c.0).collect();
     let rmse = rmse_vol(&curve, quotes, tau, (0..n).filter(|i| !excluded_set.contains(i)));
-    Ok(FittedSmile { curve, rmse_vol: rmse, excluded: candidates, quoted_range: (k[0], k[n - 1]) })
+    Ok(FittedSmile { curve, rmse_vol: rmse, excluded: candidates, quoted_range: (quotes[0].k, quotes[n - 1].k) })
 }
 
 /// Median of a slice (`None` when empty).
