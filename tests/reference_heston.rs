@@ -50,7 +50,8 @@ fn check_against_expected(case: &Value, analysis: &Analysis, tol: Tolerances) {
             e["leverage_swap"].as_f64().expect("ls"),
         );
         let l = s.replication.levels;
-        let (vs_err, gs_err, ls_err) = ((l.variance / vs - 1.0).abs(), (l.gamma / gs - 1.0).abs(), (l.leverage - ls).abs());
+        let (vs_err, gs_err, ls_err) =
+            ((l.variance / vs - 1.0).abs(), (l.gamma / gs - 1.0).abs(), (l.leverage - ls).abs());
         failed |= vs_err > tol.vs_rel || gs_err > tol.gs_rel || ls_err > tol.ls_abs;
         report.push(format!(
             "tau {tau:.4}: VS {:.10} vs {vs:.10} (rel {vs_err:.1e}), GS rel {gs_err:.1e}, LS {:.3e} vs {ls:.3e} (abs {ls_err:.1e}), wing share {:.2e}",
@@ -162,8 +163,80 @@ fn rough_heston_smiles_reproduce_the_leverage_formula() {
             // Our formula against the fixture's mpmath evaluation of the same formula.
             assert!((model_ls - expected_ls).abs() < 1e-12, "formula {model_ls:e} vs mpmath {expected_ls:e}");
             // Replication of QuantLib's smiles against the formula (engine noise ~1e-5).
-            assert!((l.leverage - model_ls).abs() < 1e-5, "tau {t}: replicated {:e} vs formula {model_ls:e}", l.leverage);
+            assert!(
+                (l.leverage - model_ls).abs() < 1e-5,
+                "tau {t}: replicated {:e} vs formula {model_ls:e}",
+                l.leverage
+            );
             assert!((l.variance - v0).abs() < 1e-5, "tau {t}: VS {} vs v0 {v0}", l.variance);
         }
+    }
+}
+
+/// The sparse case is one noise draw; the smoothing fit must hold across draws.
+/// Forty draws of uniform +-0.5 vol point noise (a fixed-seed generator, so the
+/// test is deterministic) on the noise-free QuantLib vols at the sparse strikes:
+/// per expiry, half the draws within 2% on the variance swap, 90% within 3.5% and
+/// none beyond 5%. These bounds are ours (the issue sets 3% for one draw); when the
+/// constants were chosen the worst draw was 3.6% and the worst p90 3.1%.
+#[test]
+fn heston_sparse_fit_holds_across_noise_draws() {
+    let doc = fixture("heston/smiles.json");
+    let dense = case(&doc, "dense_6sd");
+    let sparse = case(&doc, "sparse_noisy");
+    // Noise-free vols at the sparse strikes: the dense QuantLib smile interpolated
+    // linearly in vol (dense spacing 0.15 sd; interpolation error ~1e-5 in vol).
+    let mut clean = sparse["snapshot"].clone();
+    for (s, d) in clean["slices"]
+        .as_array_mut()
+        .expect("slices")
+        .iter_mut()
+        .zip(dense["snapshot"]["slices"].as_array().expect("slices"))
+    {
+        let nodes: Vec<(f64, f64)> = d["points"]
+            .as_array()
+            .expect("points")
+            .iter()
+            .map(|p| (p["strike"].as_f64().expect("strike"), p["vol"].as_f64().expect("vol")))
+            .collect();
+        for p in s["points"].as_array_mut().expect("points") {
+            let k = p["strike"].as_f64().expect("strike");
+            let i = nodes.windows(2).position(|w| w[0].0 <= k && k <= w[1].0).expect("inside dense range");
+            let ((k0, v0), (k1, v1)) = (nodes[i], nodes[i + 1]);
+            let v = v0 + (v1 - v0) * (k.ln() - k0.ln()) / (k1.ln() - k0.ln());
+            p["vol"] = v.into();
+        }
+    }
+    let mut state: u64 = 0x5eed_2026;
+    let mut uniform = move || {
+        state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+        (state >> 11) as f64 / (1u64 << 53) as f64
+    };
+    let draws = 40;
+    let expected = sparse["expected"].as_array().expect("expected");
+    let mut errors = vec![Vec::new(); expected.len()];
+    for _ in 0..draws {
+        let mut snap = clean.clone();
+        for s in snap["slices"].as_array_mut().expect("slices") {
+            for p in s["points"].as_array_mut().expect("points") {
+                let v = p["vol"].as_f64().expect("vol") + (uniform() - 0.5) * 0.01;
+                p["vol"] = v.into();
+                p["bid"] = (v - 0.005).into();
+                p["ask"] = (v + 0.005).into();
+            }
+        }
+        let analysis = analyse(&serde_json::json!({ "snapshot": snap }), "svi");
+        for (j, (s, e)) in analysis.slices.iter().zip(expected).enumerate() {
+            errors[j].push((s.replication.levels.variance / e["variance_swap"].as_f64().expect("vs") - 1.0).abs());
+        }
+    }
+    for (j, mut e) in errors.into_iter().enumerate() {
+        e.sort_by(f64::total_cmp);
+        let (median, p90, worst) = (e[draws / 2], e[(draws * 9) / 10 - 1], e[draws - 1]);
+        println!("expiry {j}: median {median:.4}, p90 {p90:.4}, worst {worst:.4}");
+        assert!(
+            median <= 0.02 && p90 <= 0.035 && worst <= 0.05,
+            "expiry {j}: median {median:.4} (tol 0.02), p90 {p90:.4} (tol 0.035), worst {worst:.4} (tol 0.05)"
+        );
     }
 }

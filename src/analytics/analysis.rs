@@ -4,7 +4,7 @@
 use super::calibrate::{fit_leverage, FitOutcome, FitSpec, LeverageTarget};
 use super::replication::{replicate, Replication};
 use super::slice::Slice;
-use super::smile::{butterfly_scan, fit_smile, ButterflyViolation, FittedSmile, SmileError, SmileMethod};
+use super::smile::{butterfly_scan, fit_smiles, ButterflyViolation, FittedSmile, SmileError, SmileMethod, SmileQuote};
 use super::term::TermStructure;
 use super::tolerances::{BUTTERFLY_G_TOL, CALENDAR_TOTAL_VARIANCE_TOL};
 
@@ -97,12 +97,13 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
             return Err(AnalysisError::DuplicateExpiry { first, second });
         }
     }
+    let inputs: Vec<(&[SmileQuote], f64)> = order.iter().map(|&i| (slices[i].quotes(), slices[i].tau())).collect();
+    let smiles = fit_smiles(&inputs, options.smile)
+        .map_err(|(position, source)| AnalysisError::Smile { index: order[position], source })?;
     let mut out: Vec<SliceAnalysis> = Vec::with_capacity(slices.len());
-    for &index in &order {
+    for (&index, smile) in order.iter().zip(smiles) {
         let slice = &slices[index];
         let tau = slice.tau();
-        let smile =
-            fit_smile(slice.quotes(), tau, options.smile).map_err(|source| AnalysisError::Smile { index, source })?;
         let replication = replicate(&smile.curve, smile.quoted_range, tau);
         let mut warnings: Vec<String> = slice.notes().to_vec();
         for (i, distance) in &smile.excluded {

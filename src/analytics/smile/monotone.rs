@@ -163,7 +163,9 @@ impl Wing {
         let (b, c) = (sol[1], sol[2]);
         let wing = Self { edge, w_edge, slope: b, sqrt_coef: c };
         let edge_slope = b + 0.5 * c / edge.abs().sqrt();
-        let admissible = b.is_finite() && c.is_finite() && (0.0..=MAX_WING_SLOPE).contains(&b)
+        let admissible = b.is_finite()
+            && c.is_finite()
+            && (0.0..=MAX_WING_SLOPE).contains(&b)
             && (0.0..=MAX_WING_SLOPE).contains(&edge_slope);
         admissible.then_some(wing)
     }
