@@ -366,10 +366,10 @@ fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64, prior: SlopeP
         }
     }
     let (f0, m0, ls0) = start;
-    // Nelder-Mead stops when the costs across the simplex agree to 1e-12 of the
-    // starting cost: parameters then agree to about 1e-6 relative, far inside the
+    // Nelder-Mead stops when the costs across the simplex agree to 1e-10 of the
+    // starting cost: parameters then agree to about 1e-5 relative, far inside the
     // quotes' own noise.
-    let sd_tolerance = (1e-12 * f0).max(1e-300);
+    let sd_tolerance = (1e-10 * f0).max(1e-300);
     let simplex = vec![vec![m0, ls0], vec![m0 + 0.1 * span, ls0], vec![m0, ls0 + 0.4]];
     let problem = OuterProblem { inner: &inner, m_range };
     let solver =
