@@ -146,6 +146,9 @@ pub struct FitOutcome {
     pub convexity: Option<Vec<ConvexityPoint>>,
 }
 
+/// Expiries used to score the starting grid.
+const GRID_EXPIRIES: usize = 8;
+
 /// Maps free parameters between the unbounded solver space and their bounds.
 #[derive(Debug, Clone)]
 struct Transform {
@@ -322,14 +325,39 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         evaluations: &evaluations,
     };
 
-    // Start: best point of a small grid over the free parameters.
+    // Start: best point of a small grid over the free parameters, scored on at most
+    // GRID_EXPIRIES expiries spread over the curve (the start only needs to be in
+    // the right basin; the solver then uses every expiry).
+    let picks: Vec<usize> = if n <= GRID_EXPIRIES {
+        (0..n).collect()
+    } else {
+        let mut v: Vec<usize> = (0..GRID_EXPIRIES).map(|i| i * (n - 1) / (GRID_EXPIRIES - 1)).collect();
+        v.dedup();
+        v
+    };
+    let sub_taus: Vec<f64> = picks.iter().map(|&i| target.taus[i]).collect();
+    let sub_vs: Vec<f64> = picks.iter().map(|&i| target.variance_swap[i]).collect();
+    let sub_curve = forward_variances(&sub_taus, &sub_vs).and_then(|xi| LeverageCurve::new(&sub_taus, &xi).ok());
+    let sub_market: Vec<f64> = picks.iter().map(|&i| market_total[i]).collect();
+    let sub_scale: Vec<f64> = picks.iter().map(|&i| scale[i]).collect();
+    let sub_evaluations = Cell::new(0u64);
+    let grid_problem = match &sub_curve {
+        Some(c) => LeverageProblem {
+            curve: c,
+            market_total: &sub_market,
+            scale: &sub_scale,
+            transform: &transform,
+            evaluations: &sub_evaluations,
+        },
+        None => problem,
+    };
     let grid = |name: ParamName, fixed: Option<f64>| -> Vec<f64> {
         match fixed {
             Some(v) => vec![v],
             None => match name {
                 ParamName::Hurst => vec![0.05, 0.15, 0.3, 0.45],
-                ParamName::RhoNu => vec![-0.2, -0.8, -2.0],
-                ParamName::MeanReversion => vec![0.3, 3.0],
+                ParamName::RhoNu => vec![-0.3, -1.0],
+                ParamName::MeanReversion => vec![0.1, 1.0],
             },
         }
     };
@@ -338,7 +366,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         for c in grid(ParamName::RhoNu, fixed_values[1]) {
             for l in grid(ParamName::MeanReversion, fixed_values[2]) {
                 let p = LeverageParams { hurst: h, rho_nu: c, mean_reversion: l };
-                if let Ok(r) = problem.residuals(&transform.to_unbounded(&p)) {
+                if let Ok(r) = grid_problem.residuals(&transform.to_unbounded(&p)) {
                     let cost: f64 = r.iter().map(|x| x * x).sum();
                     if cost.is_finite() && best.as_ref().is_none_or(|b| cost < b.0) {
                         best = Some((cost, p));
@@ -423,7 +451,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         status,
         message,
         iterations,
-        evaluations: evaluations.get(),
+        evaluations: evaluations.get() + sub_evaluations.get(),
         leverage_rmse,
         model_leverage_swap,
         active_bounds,
