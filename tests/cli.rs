@@ -132,3 +132,36 @@ fn bench_prints_timings() {
         }
     }
 }
+
+/// A slice quoted as discounted call/put mids without a forward: the forward comes
+/// from put-call parity and the vols from Black inversion; flat 25% vol in, a flat
+/// 25% variance swap out (tolerances: the inversion's 1e-14 and the integration's
+/// 1e-12, with margin).
+#[test]
+fn price_quotes_without_forward_analyse_through_the_binary() {
+    use logstrip::analytics::black::otm_price;
+    let (forward, discount, tau, vol) = (4260.0_f64, 0.985_f64, 0.5_f64, 0.25_f64);
+    let prices: Vec<serde_json::Value> = (0..21)
+        .map(|i| {
+            let strike = 3400.0 + 85.0 * i as f64;
+            let otm = otm_price((strike / forward).ln(), vol * vol * tau) * discount * forward;
+            let parity = discount * (forward - strike);
+            let (call, put) = if strike < forward { (otm + parity, otm) } else { (otm, otm - parity) };
+            serde_json::json!({"strike": strike, "call": call, "put": put})
+        })
+        .collect();
+    let snapshot = serde_json::json!({
+        "underlying": "KESTREL50", "as_of": "2026-11-30T15:30:00Z",
+        "slices": [{"tau": tau, "discount": discount, "prices": prices}],
+        "smile": "monotone", "fit": {"model": "none"}
+    });
+    let out = logstrip(&["analyze", "--input", "-"], Some(&snapshot.to_string()));
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let c = &doc["curve"][0];
+    let f = c["forward"].as_f64().expect("forward");
+    assert!((f - forward).abs() < 1e-8 * forward, "implied forward {f}");
+    let vs = c["variance_swap"].as_f64().expect("vs");
+    assert!((vs / (vol * vol) - 1.0).abs() < 1e-9, "VS {vs}");
+    assert!(doc.get("fit").is_none(), "model none: no fit");
+}

@@ -72,8 +72,10 @@ pub const DERIV_SERIES_COND_MAX: f64 = 512.0;
 const SERIES_TAIL_TOL: f64 = 8.673617379884035e-19;
 
 /// Terms are computed in `new()` until they fall below this fraction of the largest term
-/// (then no radius up to `SERIES_RADIUS_MAX` needs more).
-const SERIES_BUILD_TOL: f64 = 1e-40;
+/// (then no radius up to `SERIES_RADIUS_MAX` needs more: the truncation tolerance
+/// `SERIES_TAIL_TOL` is about 1e-18 of the sum, and the sum is at least 1/64 of the sum of
+/// absolute terms where the series is used, so 1e-24 of the largest term leaves margin).
+const SERIES_BUILD_TOL: f64 = 1e-24;
 
 /// Hard cap on the number of series coefficients (a = 0.5, |z| = 2 needs about 75).
 const SERIES_MAX_TERMS: usize = 400;
