@@ -39,7 +39,8 @@ const WG: [f64; 4] =
 pub struct Quadrature<const N: usize> {
     /// Integral per component.
     pub value: [f64; N],
-    /// Estimated absolute error per component (|Kronrod - Gauss| summed over panels).
+    /// Estimated absolute error per component (QUADPACK's scaled |Kronrod - Gauss|,
+    /// summed over panels).
     pub error: [f64; N],
     /// Integrand evaluations spent.
     pub evaluations: usize,
@@ -77,10 +78,12 @@ fn kronrod_panel<const N: usize, F: FnMut(f64) -> [f64; N]>(f: &mut F, lo: f64, 
         kronrod[c] = WGK[7] * fc[c];
         gauss[c] = WG[3] * fc[c];
     }
+    let mut samples = [([0.0; N], [0.0; N]); 7];
     for j in 0..7 {
         let dx = half * XGK[j];
         let f1 = f(centre - dx);
         let f2 = f(centre + dx);
+        samples[j] = (f1, f2);
         for c in 0..N {
             let pair = f1[c] + f2[c];
             kronrod[c] += WGK[j] * pair;
@@ -89,11 +92,21 @@ fn kronrod_panel<const N: usize, F: FnMut(f64) -> [f64; N]>(f: &mut F, lo: f64, 
             }
         }
     }
+    // Error estimate as in QUADPACK's qk15: |K - G| scaled by the integrand's
+    // variation over the panel, (200 |K - G| / resasc)^1.5, which tracks the true
+    // error of the Kronrod result far better than |K - G| itself.
     let mut value = [0.0; N];
     let mut error = [0.0; N];
     for c in 0..N {
+        let mean = 0.5 * kronrod[c];
+        let mut resasc = WGK[7] * (fc[c] - mean).abs();
+        for j in 0..7 {
+            resasc += WGK[j] * ((samples[j].0[c] - mean).abs() + (samples[j].1[c] - mean).abs());
+        }
+        resasc *= half.abs();
         value[c] = kronrod[c] * half;
-        error[c] = ((kronrod[c] - gauss[c]) * half).abs();
+        let raw = ((kronrod[c] - gauss[c]) * half).abs();
+        error[c] = if resasc > 0.0 && raw > 0.0 { resasc * (200.0 * raw / resasc).powf(1.5).min(1.0) } else { raw };
     }
     Panel { lo, hi, value, error }
 }
