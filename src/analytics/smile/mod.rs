@@ -217,6 +217,12 @@ pub fn fit_smiles(
             right: at(right).clamp(0.0, tolerances::MAX_WING_SLOPE),
             strength: SLOPE_SMOOTHING_STRENGTH,
         };
+        // A slice whose own wings already agree with its neighbours' keeps its fit.
+        let (own_left, own_right) = out[i].curve.wing_slopes();
+        let agrees = |own: f64, target: f64| (own - target).abs() <= SLOPE_AGREEMENT * (target.abs() + 0.1 * sd[i]);
+        if agrees(own_left, prior.left) && agrees(own_right, prior.right) {
+            continue;
+        }
         if let Ok(refit) = svi::fit_with_prior(quotes, *tau, prior) {
             out[i] = refit;
         }
@@ -240,6 +246,11 @@ fn quadratic_fit(x: &[f64], y: &[f64]) -> Option<[f64; 3]> {
     let c = svi::solve_small(3, m, v)?;
     c.iter().all(|v| v.is_finite()).then_some(c)
 }
+
+/// A slice is refitted only when one of its wing slopes differs from the smoothed
+/// one by more than this fraction (of the smoothed slope plus a tenth of the ATM
+/// total volatility): the prior would barely move a fit that already agrees.
+pub const SLOPE_AGREEMENT: f64 = 0.1;
 
 /// Expiries needed before wing slopes are smoothed across them.
 pub const SMOOTHING_MIN_SLICES: usize = 4;
