@@ -12,6 +12,7 @@
 //! Classical Heston (Heston 1993, RFS 6(2)) is `a = 1`.
 
 use crate::analytics::special::mittag_leffler::{MittagLefflerError, MittagLefflerSeries};
+use std::cell::RefCell;
 
 /// Parameters that the leverage swaps identify.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -50,7 +51,13 @@ pub struct LeverageCurve {
     /// `gaps[i * (i + 1) / 2 + j] = T_i - T_{j-1}` for `j = 0..=i` (with `T_{-1} = 0`).
     gaps: Vec<f64>,
     ln_gaps: Vec<f64>,
+    /// Series evaluators of `E_{a,a+2}` for the last few `a`: building one costs a
+    /// Gamma function per term, and a solver asks for the same `a` repeatedly.
+    series_cache: RefCell<Vec<(u64, MittagLefflerSeries)>>,
 }
+
+/// Evaluators kept per curve (the point, its Hurst-derivative neighbour, a trial).
+const SERIES_CACHE_SIZE: usize = 4;
 
 /// Total leverage per expiry and its derivatives by `(hurst, rho_nu, mean_reversion)`.
 #[derive(Debug, Clone, PartialEq)]
@@ -87,7 +94,7 @@ impl LeverageCurve {
             }
         }
         let ln_gaps = gaps.iter().map(|g| g.ln()).collect();
-        Ok(Self { taus: taus.to_vec(), xi: xi.to_vec(), gaps, ln_gaps })
+        Ok(Self { taus: taus.to_vec(), xi: xi.to_vec(), gaps, ln_gaps, series_cache: RefCell::new(Vec::new()) })
     }
 
     /// Expiries (years).
@@ -100,15 +107,40 @@ impl LeverageCurve {
         &self.xi
     }
 
-    /// `Phi(t)/c = t^(a+1) E_{a,a+2}(-mu t^a)` and its derivative in `mu`, for every gap.
-    fn phi_over_c(&self, series: &MittagLefflerSeries, alpha: f64, mu: f64, out: &mut Vec<(f64, f64)>) {
+    /// `Phi(t)/c = t^(a+1) E_{a,a+2}(-mu t^a)` and (when asked) its derivative in
+    /// `mu`, for every gap.
+    fn phi_over_c(
+        &self,
+        alpha: f64,
+        mu: f64,
+        with_derivative: bool,
+        out: &mut Vec<(f64, f64)>,
+    ) -> Result<(), ModelError> {
+        let mut cache = self.series_cache.borrow_mut();
+        let key = alpha.to_bits();
+        let index = match cache.iter().position(|(k, _)| *k == key) {
+            Some(i) => i,
+            None => {
+                if cache.len() >= SERIES_CACHE_SIZE {
+                    cache.remove(0);
+                }
+                cache.push((key, MittagLefflerSeries::new(alpha, alpha + 2.0)?));
+                cache.len() - 1
+            }
+        };
+        let series = &cache[index].1;
         out.clear();
         out.extend(self.gaps.iter().zip(&self.ln_gaps).map(|(&t, &ln_t)| {
             let t_a = (alpha * ln_t).exp();
-            let (e, de) = series.eval_with_derivative(-mu * t_a);
             let scale = t * t_a;
-            (scale * e, -scale * t_a * de)
+            if with_derivative {
+                let (e, de) = series.eval_with_derivative(-mu * t_a);
+                (scale * e, -scale * t_a * de)
+            } else {
+                (scale * series.eval(-mu * t_a), 0.0)
+            }
         }));
+        Ok(())
     }
 
     /// Assembles `L(T_i) = sum_j xi_j [f(T_i - T_{j-1}) - f(T_i - T_j)]` from values on the gaps.
@@ -145,9 +177,8 @@ impl LeverageCurve {
     /// [`ModelError::BadParams`] for parameters outside the domain.
     pub fn total_leverage(&self, params: &LeverageParams) -> Result<Vec<f64>, ModelError> {
         let alpha = Self::check(params)?;
-        let series = MittagLefflerSeries::new(alpha, alpha + 2.0)?;
         let mut phi = Vec::with_capacity(self.gaps.len());
-        self.phi_over_c(&series, alpha, params.mean_reversion - params.rho_nu, &mut phi);
+        self.phi_over_c(alpha, params.mean_reversion - params.rho_nu, false, &mut phi)?;
         let c = params.rho_nu;
         Ok(self.assemble(|g| c * phi[g].0))
     }
@@ -163,9 +194,8 @@ impl LeverageCurve {
         let alpha = Self::check(params)?;
         let c = params.rho_nu;
         let mu = params.mean_reversion - c;
-        let series = MittagLefflerSeries::new(alpha, alpha + 2.0)?;
         let mut phi = Vec::with_capacity(self.gaps.len());
-        self.phi_over_c(&series, alpha, mu, &mut phi);
+        self.phi_over_c(alpha, mu, true, &mut phi)?;
         let total = self.assemble(|g| c * phi[g].0);
         // dPhi/dc = Phi/c + c dPhi/dmu * dmu/dc (dmu/dc = -1); dPhi/dlambda = c dPhi/dmu.
         let d_c = self.assemble(|g| phi[g].0 - c * phi[g].1);
@@ -174,9 +204,8 @@ impl LeverageCurve {
         // forward point may lie beyond H = 1/2): truncation ~1e-7, rounding ~1e-9.
         let step = 1e-7;
         let a_lo = params.hurst - step + 0.5;
-        let series_lo = MittagLefflerSeries::new(a_lo, a_lo + 2.0)?;
         let mut phi_lo = Vec::with_capacity(self.gaps.len());
-        self.phi_over_c(&series_lo, a_lo, mu, &mut phi_lo);
+        self.phi_over_c(a_lo, mu, false, &mut phi_lo)?;
         let l_lo = self.assemble(|g| c * phi_lo[g].0);
         let gradient = (0..total.len()).map(|i| [(total[i] - l_lo[i]) / step, d_c[i], d_lambda[i]]).collect();
         Ok(LeverageWithGradient { total, gradient })
