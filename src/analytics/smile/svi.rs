@@ -355,8 +355,8 @@ fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64, prior: SlopeP
     let m_range = (k_lo, k_hi);
     // Coarse grid for the start (the outer problem is not convex).
     let mut start = (f64::INFINITY, 0.0, 0.0);
-    for i in 0..5 {
-        let m = k_lo + span * (i as f64) / 4.0;
+    for i in 0..3 {
+        let m = k_lo + span * (0.25 + 0.25 * i as f64);
         for scale in [0.1, 0.3, 1.0, 3.0] {
             let sigma = (atm_sd * scale).clamp(1e-4, 7.0);
             let (f, _) = inner.solve(m, sigma);
