@@ -12,6 +12,11 @@ use super::tolerances::{BUTTERFLY_G_TOL, CALENDAR_TOTAL_VARIANCE_TOL};
 /// flagged as resting on its wings (common practice, no source).
 pub const WIDE_WING_SHARE: f64 = 0.10;
 
+/// Grid steps of the butterfly scan over the quoted range plus a quarter of it on
+/// each side: a resolution of about 1/300 of the range, enough to report where
+/// the density turns negative to the precision quotes allow.
+pub const BUTTERFLY_SCAN_STEPS: usize = 200;
+
 /// Options of an analysis.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct AnalyzeOptions {
@@ -115,7 +120,7 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
         }
         let (k_lo, k_hi) = smile.quoted_range;
         let pad = 0.25 * (k_hi - k_lo);
-        let butterfly = butterfly_scan(&smile.curve, k_lo - pad, k_hi + pad, 400, BUTTERFLY_G_TOL);
+        let butterfly = butterfly_scan(&smile.curve, k_lo - pad, k_hi + pad, BUTTERFLY_SCAN_STEPS, BUTTERFLY_G_TOL);
         if let Some(b) = butterfly {
             warnings.push(format!(
                 "butterfly arbitrage: Durrleman's g < 0 for log-moneyness in [{:.3}, {:.3}], minimum {:.3e} at {:.3}",
