@@ -219,7 +219,7 @@ fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f
         .map(|s| {
             let spreads: Vec<f64> =
                 slices[s.input_index].quotes().iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0).collect();
-            let h = super::smile::svi::median(&spreads)?;
+            let h = super::stats::median(&spreads)?;
             let vs = s.replication.levels.variance.max(1e-12);
             Some(2.0 * vs.sqrt() * h * (3.0 / spreads.len() as f64).sqrt())
         })

@@ -310,7 +310,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let rms = (target.leverage_swap.iter().map(|l| l * l).sum::<f64>() / n as f64).sqrt().max(1e-6);
     let sigma: Vec<f64> = match &target.uncertainty {
         Some(u) if u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0) => {
-            let med = super::smile::svi::median(u).unwrap_or(1.0);
+            let med = super::stats::median(u).unwrap_or(1.0);
             u.iter().map(|x| x / med * rms).collect()
         }
         _ => vec![rms; n],

@@ -16,5 +16,6 @@ pub mod replication;
 pub mod slice;
 pub mod smile;
 pub mod special;
+pub mod stats;
 pub mod term;
 pub mod tolerances;

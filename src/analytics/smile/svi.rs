@@ -6,6 +6,7 @@
 //! over a polytope; the outer search over `(m, sigma)` uses argmin's Nelder–Mead.
 
 use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
+use crate::analytics::stats::median;
 use crate::analytics::tolerances::{DEFAULT_HALF_SPREAD_VOL, MAX_WING_SLOPE, OUTLIER_FLOOR_VOL, OUTLIER_SIGMAS};
 use argmin::core::{CostFunction, Error as ArgminError, Executor};
 use argmin::solver::neldermead::NelderMead;
@@ -449,17 +450,6 @@ pub fn fit_with_prior(quotes: &[SmileQuote], tau: f64, prior: SlopePrior) -> Res
     let excluded_set: Vec<usize> = candidates.iter().map(|c| c.0).collect();
     let rmse = rmse_vol(&curve, quotes, tau, (0..n).filter(|i| !excluded_set.contains(i)));
     Ok(FittedSmile { curve, rmse_vol: rmse, excluded: candidates, quoted_range: (quotes[0].k, quotes[n - 1].k) })
-}
-
-/// Median of a slice (`None` when empty).
-pub(crate) fn median(values: &[f64]) -> Option<f64> {
-    if values.is_empty() {
-        return None;
-    }
-    let mut v = values.to_vec();
-    v.sort_by(f64::total_cmp);
-    let mid = v.len() / 2;
-    Some(if v.len() % 2 == 1 { v[mid] } else { 0.5 * (v[mid - 1] + v[mid]) })
 }
 
 #[cfg(test)]
