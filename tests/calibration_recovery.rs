@@ -117,3 +117,41 @@ mod gradient {
         }
     }
 }
+
+/// The convexity report against a closed form: for classical Heston (a = 1) with a
+/// flat forward variance `theta`, `K(t) = nu (1 - e^{-lambda t}) / lambda` and
+/// `Var(Int_0^T v) = theta nu^2 / lambda^2 [T - 2 (1 - e^{-lambda T}) / lambda
+/// + (1 - e^{-2 lambda T}) / (2 lambda)]` (integrating MATH.md section 5's formula by
+/// hand; the square-root process result). The volatility swap follows Brockhaus &
+/// Long (2000): `sqrt(VS) - Var(RV) / (8 VS^1.5)`. Tolerance 1e-10 relative: the
+/// quadrature is asked for 1e-12.
+#[test]
+fn convexity_matches_the_heston_closed_form() {
+    let (theta, nu, lambda, rho) = (0.04, 0.5, 1.5, -0.7);
+    let taus = vec![0.25, 0.5, 1.0, 2.0];
+    let target = LeverageTarget {
+        leverage_swap: vec![-0.001; taus.len()],
+        variance_swap: vec![theta; taus.len()],
+        taus: taus.clone(),
+        uncertainty: None,
+    };
+    let spec = FitSpec {
+        model: Some(ModelKind::Heston),
+        rho_nu: Some(rho * nu),
+        mean_reversion: Some(lambda),
+        nu: Some(nu),
+        ..FitSpec::default()
+    };
+    let fit = fit_leverage(&target, &spec);
+    let convexity = fit.convexity.expect("nu given: convexity reported");
+    assert!((fit.rho.expect("rho") - rho).abs() < 1e-15);
+    for (c, &t) in convexity.iter().zip(&taus) {
+        let var_total = theta * nu * nu / (lambda * lambda)
+            * (t - 2.0 * (1.0 - (-lambda * t).exp()) / lambda + (1.0 - (-2.0 * lambda * t).exp()) / (2.0 * lambda));
+        let var_rv = var_total / (t * t);
+        let sd = c.realized_variance_stdev;
+        assert!((sd * sd / var_rv - 1.0).abs() < 1e-10, "tau {t}: Var(RV) {} vs closed form {var_rv}", sd * sd);
+        let vol_swap = theta.sqrt() - var_rv / (8.0 * theta.powf(1.5));
+        assert!((c.volatility_swap - vol_swap).abs() < 1e-12, "tau {t}: {} vs {vol_swap}", c.volatility_swap);
+    }
+}
