@@ -120,8 +120,8 @@ mod gradient {
 
 /// The convexity report against a closed form: for classical Heston (a = 1) with a
 /// flat forward variance `theta`, `K(t) = nu (1 - e^{-lambda t}) / lambda` and
-/// `Var(Int_0^T v) = theta nu^2 / lambda^2 [T - 2 (1 - e^{-lambda T}) / lambda
-/// + (1 - e^{-2 lambda T}) / (2 lambda)]` (integrating MATH.md section 5's formula by
+/// `Var(Int_0^T v) = theta nu^2 / lambda^2 [T - 2 (1 - e^{-lambda T}) / lambda +
+/// (1 - e^{-2 lambda T}) / (2 lambda)]` (integrating MATH.md section 5's formula by
 /// hand; the square-root process result). The volatility swap follows Brockhaus &
 /// Long (2000): `sqrt(VS) - Var(RV) / (8 VS^1.5)`. Tolerance 1e-10 relative: the
 /// quadrature is asked for 1e-12.
