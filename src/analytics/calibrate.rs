@@ -147,7 +147,7 @@ pub struct FitOutcome {
 }
 
 /// Expiries used to score the starting grid.
-const GRID_EXPIRIES: usize = 8;
+const GRID_EXPIRIES: usize = 6;
 
 /// Maps free parameters between the unbounded solver space and their bounds.
 #[derive(Debug, Clone)]
