@@ -101,6 +101,11 @@ fn malformed_and_misspelt_input_name_the_problem() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("EOF"), "{}", String::from_utf8_lossy(&out.stderr));
 
+    let out = logstrip(&["analyze", "--input", "-"], Some("[\"KESTREL50\", \"2026-11-30T15:30:00Z\"]"));
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.starts_with("(document): must be a JSON object"), "{stderr}");
+
     let typo = r#"{"underlying":"X","as_of":"2026-11-30T15:30:00Z","slices":[{"tau":1,"forwrd":100,"points":[]}]}"#;
     let out = logstrip(&["analyze", "--input", "-"], Some(typo));
     assert_eq!(out.status.code(), Some(2));

@@ -213,6 +213,13 @@ pub struct ValidSwaps {
 
 /// Parses JSON text into `T`, reporting the failing field's path.
 fn parse_json<T: for<'de> Deserialize<'de>>(text: &str) -> Result<T, InputErrors> {
+    // serde would also read a struct from a JSON array (fields by position); a
+    // document must be an object with named fields.
+    if let Some(first) = text.trim_start().chars().next() {
+        if first != '{' {
+            return Err(InputErrors::one(FieldPath::root(), "must be a JSON object (a document starting with '{')"));
+        }
+    }
     let mut de = serde_json::Deserializer::from_str(text);
     let parsed: Result<T, _> = serde_path_to_error::deserialize(&mut de);
     let value = parsed.map_err(|err| {
