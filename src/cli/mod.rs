@@ -1,5 +1,5 @@
 //! The subcommands behind `main.rs`: each reads its input, calls the analytics and
-//! writes JSON. They return an [`ExitCode`]-like status so tests can call them.
+//! writes JSON. They return a [`Status`] (the process exit code) so tests can call them.
 
 pub mod bench;
 
