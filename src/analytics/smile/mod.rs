@@ -205,7 +205,13 @@ pub fn fit_smiles(
     let normalised = |pick: fn((f64, f64)) -> f64| -> Vec<f64> {
         first.iter().zip(&sd).map(|(f, s)| pick(f.curve.wing_slopes()) / s).collect()
     };
-    let (Some(left), Some(right)) = (quadratic_fit(&x, &normalised(|p| p.0)), quadratic_fit(&x, &normalised(|p| p.1)))
+    // A slice says more about a wing the further out it is quoted on that side:
+    // weight (reach in ATM standard deviations / NARROW_REACH_SD)^2, at least 1%.
+    let reach_weight = |reach: f64, s: f64| (reach / (s * NARROW_REACH_SD)).clamp(0.1, 1.0).powi(2);
+    let left_weight: Vec<f64> = first.iter().zip(&sd).map(|(f, s)| reach_weight(-f.quoted_range.0, *s)).collect();
+    let right_weight: Vec<f64> = first.iter().zip(&sd).map(|(f, s)| reach_weight(f.quoted_range.1, *s)).collect();
+    let (Some(left), Some(right)) =
+        (quadratic_fit(&x, &normalised(|p| p.0), &left_weight), quadratic_fit(&x, &normalised(|p| p.1), &right_weight))
     else {
         return Ok(first);
     };
@@ -230,22 +236,27 @@ pub fn fit_smiles(
     Ok(out)
 }
 
-/// Least-squares coefficients `[c0, c1, c2]` of `y ~ c0 + c1 x + c2 x^2`.
-fn quadratic_fit(x: &[f64], y: &[f64]) -> Option<[f64; 3]> {
+/// Weighted least-squares coefficients `[c0, c1, c2]` of `y ~ c0 + c1 x + c2 x^2`.
+fn quadratic_fit(x: &[f64], y: &[f64], weight: &[f64]) -> Option<[f64; 3]> {
     let mut m = [[0.0; 3]; 3];
     let mut v = [0.0; 3];
-    for (&xi, &yi) in x.iter().zip(y) {
+    for ((&xi, &yi), &wi) in x.iter().zip(y).zip(weight) {
         let phi = [1.0, xi, xi * xi];
         for r in 0..3 {
             for c in 0..3 {
-                m[r][c] += phi[r] * phi[c];
+                m[r][c] += wi * phi[r] * phi[c];
             }
-            v[r] += phi[r] * yi;
+            v[r] += wi * phi[r] * yi;
         }
     }
     let c = svi::solve_small(3, m, v)?;
     c.iter().all(|v| v.is_finite()).then_some(c)
 }
+
+/// Reach (in ATM standard deviations) from which a slice's wing slope counts fully
+/// in the smoothing across expiries; nearer quotes count less (common practice, no
+/// source: a wing quoted to three standard deviations shows its slope).
+pub const NARROW_REACH_SD: f64 = 3.0;
 
 /// A slice is refitted only when one of its wing slopes differs from the smoothed
 /// one by more than this fraction (of the smoothed slope plus a tenth of the ATM
