@@ -205,13 +205,16 @@ struct LeverageProblem<'a> {
     scale: &'a [f64],
     transform: &'a Transform,
     evaluations: &'a Cell<u64>,
+    /// Residuals only rank start points: the model to about 1e-9 relative is enough.
+    for_start: bool,
 }
 
 impl LeverageProblem<'_> {
     fn residuals(&self, u: &[f64]) -> Result<Vec<f64>, ModelError> {
         self.evaluations.set(self.evaluations.get() + 1);
         let (p, _) = self.transform.to_params(u);
-        let model = self.curve.total_leverage(&p)?;
+        let model =
+            if self.for_start { self.curve.total_leverage_for_start(&p)? } else { self.curve.total_leverage(&p)? };
         Ok(model.iter().zip(self.market_total).zip(self.scale).map(|((m, t), s)| (m - t) * s).collect())
     }
 }
@@ -323,6 +326,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         scale: &scale,
         transform: &transform,
         evaluations: &evaluations,
+        for_start: false,
     };
 
     // Start: best point of a small grid over the free parameters, scored on at most
@@ -348,8 +352,9 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             scale: &sub_scale,
             transform: &transform,
             evaluations: &sub_evaluations,
+            for_start: true,
         },
-        None => problem,
+        None => LeverageProblem { for_start: true, ..problem },
     };
     let grid = |name: ParamName, fixed: Option<f64>| -> Vec<f64> {
         match fixed {

@@ -69,16 +69,16 @@ pub const DERIV_SERIES_COND_MAX: f64 = 512.0;
 
 /// Series terms are dropped once every later term is below this fraction of the smallest
 /// `|E|` in the series region (`2^-60`, far below double rounding of the sum).
-const SERIES_TAIL_TOL: f64 = 8.673617379884035e-19;
+pub(crate) const SERIES_TAIL_TOL: f64 = 8.673617379884035e-19;
 
 /// Terms are computed in `new()` until they fall below this fraction of the largest term
 /// (then no radius up to `SERIES_RADIUS_MAX` needs more: the truncation tolerance
 /// `SERIES_TAIL_TOL` is about 1e-18 of the sum, and the sum is at least 1/64 of the sum of
 /// absolute terms where the series is used, so 1e-24 of the largest term leaves margin).
-const SERIES_BUILD_TOL: f64 = 1e-24;
+pub(crate) const SERIES_BUILD_TOL: f64 = 1e-24;
 
 /// Hard cap on the number of series coefficients (a = 0.5, |z| = 2 needs about 75).
-const SERIES_MAX_TERMS: usize = 400;
+pub(crate) const SERIES_MAX_TERMS: usize = 400;
 
 /// Candidate series radii, as fractions of `SERIES_RADIUS_MAX`, smallest first. Each one gets
 /// its own truncation length; the accepted radius on each side is the last candidate for which
@@ -700,7 +700,7 @@ fn rgamma_dd(hi: f64, lo: f64) -> f64 {
 /// error of `|ln Gamma(x)|` ulps (measured at most 1.3e-13 for x in [10, 100]). Those
 /// terms are small parts of any sum the series is used for (|z| <= 2), so the sums
 /// keep their accuracy (the mpmath fixture test still passes at 1e-14).
-fn rgamma_series_term(x: f64) -> f64 {
+pub(crate) fn rgamma_series_term(x: f64) -> f64 {
     if x >= 10.0 {
         if x > 171.7 {
             return 0.0;

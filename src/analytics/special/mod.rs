@@ -1,3 +1,4 @@
 //! Special functions the models need and no crate provides.
 
+pub mod digamma;
 pub mod mittag_leffler;
