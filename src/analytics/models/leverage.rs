@@ -686,7 +686,7 @@ impl LeverageCurve {
     /// Total leverage and its gradient. Derivatives in `rho_nu` and
     /// `mean_reversion` are analytic; in `hurst` analytic (the power series differentiated
     /// term by term) for gaps inside the series radius, and a backward difference with step
-    /// [`HURST_STEP`] for the others, accurate to about 1e-7 relative (enough for the
+    /// `1e-7` (`HURST_STEP`) for the others, accurate to about 1e-7 relative (enough for the
     /// solver's steps; the fitted point is where the residuals, computed exactly, stop
     /// improving).
     ///

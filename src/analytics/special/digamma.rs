@@ -6,7 +6,7 @@
 /// `3617 / (8160 x^16)` below 5e-17: the series is accurate to rounding from here on.
 const DIGAMMA_ASYMPTOTIC_FROM: f64 = 10.0;
 
-/// `psi(x)` for finite `x > 0`: recurrence up to [`DIGAMMA_ASYMPTOTIC_FROM`], then the
+/// `psi(x)` for finite `x > 0`: recurrence up to 10 (`DIGAMMA_ASYMPTOTIC_FROM`), then the
 /// asymptotic expansion `ln x - 1/(2x) - sum_n B_2n / (2n x^2n)` (Handbook of Mathematical
 /// Functions, NBS Applied Mathematics Series 55, 1964, formula 6.3.18). Accurate to about
 /// `1e-15 * max(1, |psi(x)|)` for `x >= 1` (tested; the recurrence's rounding is what is left,
