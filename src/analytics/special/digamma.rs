@@ -1,5 +1,6 @@
 //! The digamma function `psi(x) = Gamma'(x) / Gamma(x)` for real `x > 0` (dimensionless),
-//! needed for derivatives of `1/Gamma(a k + b)` in `a`.
+//! needed for derivatives of `1/Gamma(a k + b)` in `a`. `libm` has none, and the
+//! statistics crate that has one pulls a second version of nalgebra into the build.
 
 /// Arguments are shifted up by `psi(x) = psi(x + 1) - 1/x` until they reach this value, where
 /// the asymptotic series below (terms up to `x^-14`) has a first neglected term
