@@ -238,15 +238,20 @@ pub fn fit_smiles(
 
 /// Weighted least-squares coefficients `[c0, c1, c2]` of `y ~ c0 + c1 x + c2 x^2`.
 fn quadratic_fit(x: &[f64], y: &[f64], weight: &[f64]) -> Option<[f64; 3]> {
+    least_squares3(x.iter().zip(y).zip(weight).map(|((&xi, &yi), &wi)| ([1.0, xi, xi * xi], yi, wi)))
+}
+
+/// Weighted least squares with three basis functions: rows of `(basis values, y,
+/// weight)`; `None` when the normal matrix is singular or the result not finite.
+pub(crate) fn least_squares3(rows: impl Iterator<Item = ([f64; 3], f64, f64)>) -> Option<[f64; 3]> {
     let mut m = [[0.0; 3]; 3];
     let mut v = [0.0; 3];
-    for ((&xi, &yi), &wi) in x.iter().zip(y).zip(weight) {
-        let phi = [1.0, xi, xi * xi];
+    for (phi, y, w) in rows {
         for r in 0..3 {
             for c in 0..3 {
-                m[r][c] += wi * phi[r] * phi[c];
+                m[r][c] += w * phi[r] * phi[c];
             }
-            v[r] += wi * phi[r] * yi;
+            v[r] += w * phi[r] * y;
         }
     }
     let c = svi::solve_small(3, m, v)?;

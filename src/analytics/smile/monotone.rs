@@ -147,19 +147,8 @@ impl Wing {
         if k.len() < 3 || k.iter().any(|x| x * edge <= 0.0) {
             return None;
         }
-        // Normal equations of the basis [1, |k|, sqrt|k|].
-        let mut m = [[0.0; 3]; 3];
-        let mut v = [0.0; 3];
-        for (&x, &y) in k.iter().zip(w) {
-            let phi = [1.0, x.abs(), x.abs().sqrt()];
-            for r in 0..3 {
-                for c in 0..3 {
-                    m[r][c] += phi[r] * phi[c];
-                }
-                v[r] += phi[r] * y;
-            }
-        }
-        let sol = super::svi::solve_small(3, m, v)?;
+        let rows = k.iter().zip(w).map(|(&x, &y)| ([1.0, x.abs(), x.abs().sqrt()], y, 1.0));
+        let sol = super::least_squares3(rows)?;
         let (b, c) = (sol[1], sol[2]);
         let wing = Self { edge, w_edge, slope: b, sqrt_coef: c };
         let edge_slope = b + 0.5 * c / edge.abs().sqrt();
