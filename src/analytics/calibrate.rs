@@ -52,6 +52,15 @@ impl ParamName {
 
     const ALL: [ParamName; 3] = [ParamName::Hurst, ParamName::RhoNu, ParamName::MeanReversion];
 
+    /// Position in `ALL` (and in `[hurst, rho_nu, mean_reversion]` arrays).
+    fn index(self) -> usize {
+        match self {
+            Self::Hurst => 0,
+            Self::RhoNu => 1,
+            Self::MeanReversion => 2,
+        }
+    }
+
     /// Search bounds (MATH.md section 7).
     pub fn bounds(&self) -> (f64, f64) {
         match self {
@@ -186,7 +195,7 @@ impl Transform {
         self.free
             .iter()
             .map(|name| {
-                let i = ParamName::ALL.iter().position(|n| n == name).unwrap_or(0);
+                let i = name.index();
                 let (lo, hi) = name.bounds();
                 let margin = 1e-9 * (hi - lo);
                 let v = x[i].clamp(lo + margin, hi - margin);
@@ -240,7 +249,7 @@ impl Jacobian for LeverageProblem<'_> {
         let n = lg.total.len();
         let free = &self.transform.free;
         Ok(DMatrix::from_fn(n, free.len(), |i, j| {
-            let which = ParamName::ALL.iter().position(|nm| *nm == free[j]).unwrap_or(0);
+            let which = free[j].index();
             lg.gradient[i][which] * dxdu[j] * self.scale[i]
         }))
     }
@@ -436,7 +445,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let active_bounds = free
         .iter()
         .filter(|name| {
-            let i = ParamName::ALL.iter().position(|n| n == *name).unwrap_or(0);
+            let i = name.index();
             let (lo, hi) = name.bounds();
             let margin = ACTIVE_BOUND_FRACTION * (hi - lo);
             x[i] <= lo + margin || x[i] >= hi - margin

@@ -687,12 +687,7 @@ fn rgamma_dd(hi: f64, lo: f64) -> f64 {
     if s == 0.0 {
         return 0.0;
     }
-    let one_minus = 1.0 - hi;
-    if one_minus > 171.0 {
-        let ln = libm::lgamma(one_minus) + s.abs().ln() - PI.ln();
-        return s.signum() * ln.exp();
-    }
-    s * libm::tgamma(one_minus) / PI
+    reflected_rgamma(s, 1.0 - hi)
 }
 
 /// `1/Gamma(x)` for series coefficients: `exp(-lgamma(x))` from `x = 10` on, which
@@ -727,9 +722,14 @@ fn rgamma(x: f64) -> f64 {
     if s == 0.0 {
         return 0.0;
     }
-    let one_minus = 1.0 - x;
+    reflected_rgamma(s, 1.0 - x)
+}
+
+/// The reflection formula's `1/Gamma(x) = sin(pi x) Gamma(1 - x) / pi`, given
+/// `s = sin(pi x)` and `one_minus = 1 - x`; in logarithms where `Gamma(1 - x)`
+/// overflows (keeping the sign).
+fn reflected_rgamma(s: f64, one_minus: f64) -> f64 {
     if one_minus > 171.0 {
-        // huge magnitude; keep the sign, compute in logs
         let ln = libm::lgamma(one_minus) + s.abs().ln() - PI.ln();
         return s.signum() * ln.exp();
     }
