@@ -4,8 +4,11 @@
 //!
 //! Layers: [`analytics`] is the pure numerical core; [`wire`] holds the JSON
 //! formats (raw input types, validation into analytics types, output types);
-//! [`cli`] implements the subcommands on top.
+//! [`store`] keeps the history of analyses (SQLite or PostgreSQL); [`api`] is the
+//! HTTP service; [`cli`] implements the subcommands on top.
 
 pub mod analytics;
+pub mod api;
 pub mod cli;
+pub mod store;
 pub mod wire;

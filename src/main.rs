@@ -34,6 +34,10 @@ enum Command {
         #[arg(long)]
         pretty: bool,
     },
+    /// Serve the HTTP API, keeping every analysis in the history store.
+    Serve(cli::serve::ServeArgs),
+    /// Print the service's OpenAPI document.
+    Openapi,
     /// Time the analysis and the fit of a snapshot in-process.
     Bench {
         /// Snapshot JSON file.
@@ -52,6 +56,11 @@ fn main() -> ExitCode {
         Command::Analyze { input, pretty } => cli::run_analyze(&input, pretty, &mut stdout),
         Command::Fit { input, pretty } => cli::run_fit(&input, pretty, &mut stdout),
         Command::Bench { input, runs } => cli::bench::run_bench(&input, runs, &mut stdout),
+        Command::Serve(args) => {
+            drop(stdout);
+            cli::serve::run_serve(&args)
+        }
+        Command::Openapi => cli::run_openapi(&mut stdout),
     };
     match result {
         Ok(()) => ExitCode::from(Status::Ok as u8),

@@ -47,7 +47,7 @@ fn timing(mut samples: Vec<f64>) -> Timing {
 /// [`CliError`] for unreadable or invalid input.
 pub fn run_bench(input: &Path, runs: usize, out: &mut dyn Write) -> Result<(), CliError> {
     let text = read_input(input)?;
-    let (snapshot, first) = super::analyze_text(&text)?;
+    let (snapshot, first) = crate::wire::analyze_text(&text)?;
     let runs = runs.max(1);
     let spec = snapshot.options.fit.clone().unwrap_or(FitSpec::default());
     let options = AnalyzeOptions { smile: snapshot.options.smile, fit: Some(spec.clone()) };

@@ -2,10 +2,10 @@
 //! writes JSON. They return a [`Status`] (the process exit code) so tests can call them.
 
 pub mod bench;
+pub mod serve;
 
-use crate::analytics::analysis::{analyze, Analysis};
 use crate::analytics::calibrate::fit_leverage;
-use crate::wire::{self, output, InputErrors};
+use crate::wire::{self, analyze_text, output, InputErrors};
 use std::io::{Read, Write};
 use std::path::Path;
 
@@ -34,14 +34,20 @@ pub enum CliError {
     /// The input is invalid.
     #[error("{0}")]
     Input(#[from] InputErrors),
+    /// A flag or setting is invalid.
+    #[error("{0}")]
+    Config(String),
+    /// The service could not start or failed.
+    #[error("{0}")]
+    Serve(String),
 }
 
 impl CliError {
     /// The exit status for this error.
     pub fn status(&self) -> Status {
         match self {
-            Self::Io { .. } => Status::Io,
-            Self::Input(_) => Status::BadInput,
+            Self::Io { .. } | Self::Serve(_) => Status::Io,
+            Self::Input(_) | Self::Config(_) => Status::BadInput,
         }
     }
 }
@@ -65,26 +71,6 @@ fn write_json<T: serde::Serialize>(value: &T, pretty: bool, out: &mut dyn Write)
     writeln!(out, "{text}").map_err(io)
 }
 
-/// Parses, validates and analyses a snapshot document.
-///
-/// # Errors
-/// [`InputErrors`] for invalid input (duplicate expiries and unusable smiles included).
-pub fn analyze_text(text: &str) -> Result<(wire::ValidSnapshot, Analysis), InputErrors> {
-    let snapshot = wire::parse_snapshot(text)?;
-    let analysis = analyze(&snapshot.slices, &snapshot.options).map_err(|e| {
-        use crate::analytics::analysis::AnalysisError;
-        let root = wire::FieldPath::root().field("slices");
-        match e {
-            AnalysisError::Smile { index, source } => InputErrors::one(root.index(index), source.to_string()),
-            AnalysisError::DuplicateExpiry { first, second } => {
-                InputErrors::one(root.index(second).field("tau"), format!("same expiry as slices[{first}]"))
-            }
-            AnalysisError::Empty => InputErrors::one(root, "needs at least one slice"),
-        }
-    })?;
-    Ok((snapshot, analysis))
-}
-
 /// `logstrip analyze`: smiles in, swap term structures and the fit out.
 ///
 /// # Errors
@@ -104,4 +90,13 @@ pub fn run_fit(input: &Path, pretty: bool, out: &mut dyn Write) -> Result<(), Cl
     let swaps = wire::parse_swaps(&text)?;
     let fit = swaps.fit.as_ref().map(|spec| fit_leverage(&swaps.target, spec));
     write_json(&output::swaps_doc(&swaps, fit.as_ref()), pretty, out)
+}
+
+/// `logstrip openapi`: the service's OpenAPI document (what `GET /openapi.json` serves).
+///
+/// # Errors
+/// [`CliError::Io`] when standard output cannot be written.
+pub fn run_openapi(out: &mut dyn Write) -> Result<(), CliError> {
+    out.write_all(crate::api::docs::openapi_json().as_bytes())
+        .map_err(|source| CliError::Io { path: "stdout".into(), source })
 }

@@ -11,7 +11,7 @@ use chrono::{DateTime, Utc};
 use serde::Deserialize;
 
 /// A snapshot of option smiles, as written by users.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SnapshotDoc {
     /// Name of the underlying (free text).
@@ -32,7 +32,7 @@ pub struct SnapshotDoc {
 }
 
 /// One expiry.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SliceDoc {
     /// Expiry time, RFC 3339 (or give `tau`).
@@ -56,7 +56,7 @@ pub struct SliceDoc {
 }
 
 /// An implied-vol quote.
-#[derive(Debug, Clone, Copy, Deserialize)]
+#[derive(Debug, Clone, Copy, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PointDoc {
     /// Strike.
@@ -72,7 +72,7 @@ pub struct PointDoc {
 }
 
 /// A price quote.
-#[derive(Debug, Clone, Copy, Deserialize)]
+#[derive(Debug, Clone, Copy, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct PriceDoc {
     /// Strike.
@@ -86,7 +86,7 @@ pub struct PriceDoc {
 }
 
 /// Smile method names.
-#[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum SmileMethodDoc {
     /// Raw SVI.
@@ -96,7 +96,7 @@ pub enum SmileMethodDoc {
 }
 
 /// Model names.
-#[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq)]
+#[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum ModelDoc {
     /// Rough Heston.
@@ -108,7 +108,7 @@ pub enum ModelDoc {
 }
 
 /// Fit request.
-#[derive(Debug, Clone, Deserialize, Default)]
+#[derive(Debug, Clone, Deserialize, Default, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct FitDoc {
     /// Model; default `rough_heston`.
@@ -123,7 +123,7 @@ pub struct FitDoc {
 }
 
 /// Fixed parameter values.
-#[derive(Debug, Clone, Copy, Deserialize, Default)]
+#[derive(Debug, Clone, Copy, Deserialize, Default, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct FixDoc {
     /// Hurst exponent.
@@ -138,7 +138,7 @@ pub struct FixDoc {
 }
 
 /// Swap levels for `logstrip fit`.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SwapsDoc {
     /// Name of the underlying.
@@ -156,7 +156,7 @@ pub struct SwapsDoc {
 }
 
 /// Swap levels at one expiry.
-#[derive(Debug, Clone, Deserialize)]
+#[derive(Debug, Clone, Deserialize, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct SwapDoc {
     /// Expiry time, RFC 3339 (or give `tau`).
@@ -215,10 +215,12 @@ pub struct ValidSwaps {
 fn parse_json<T: for<'de> Deserialize<'de>>(text: &str) -> Result<T, InputErrors> {
     // serde would also read a struct from a JSON array (fields by position); a
     // document must be an object with named fields.
-    if let Some(first) = text.trim_start().chars().next() {
-        if first != '{' {
-            return Err(InputErrors::one(FieldPath::root(), "must be a JSON object (a document starting with '{')"));
-        }
+    if !text.trim_start().starts_with('{') {
+        let message = "must be a JSON object (a document starting with '{')";
+        return Err(match serde_json::from_str::<serde::de::IgnoredAny>(text) {
+            Ok(_) => InputErrors::one(FieldPath::root(), message),
+            Err(e) => InputErrors::malformed(FieldPath::root(), format!("{message}: {e}")),
+        });
     }
     let mut de = serde_json::Deserializer::from_str(text);
     let parsed: Result<T, _> = serde_path_to_error::deserialize(&mut de);
@@ -234,9 +236,13 @@ fn parse_json<T: for<'de> Deserialize<'de>>(text: &str) -> Result<T, InputErrors
                 })
                 .collect(),
         );
-        InputErrors::one(path, err.into_inner().to_string())
+        let inner = err.into_inner();
+        match inner.classify() {
+            serde_json::error::Category::Data => InputErrors::one(path, inner.to_string()),
+            _ => InputErrors::malformed(path, inner.to_string()),
+        }
     })?;
-    de.end().map_err(|e| InputErrors::one(FieldPath::root(), e.to_string()))?;
+    de.end().map_err(|e| InputErrors::malformed(FieldPath::root(), e.to_string()))?;
     Ok(value)
 }
 
@@ -252,7 +258,7 @@ impl Problems {
         if self.0.is_empty() {
             Ok(value)
         } else {
-            Err(InputErrors { problems: self.0 })
+            Err(InputErrors::from_problems(self.0))
         }
     }
 }
@@ -453,7 +459,7 @@ pub fn validate_snapshot(doc: &SnapshotDoc) -> Result<ValidSnapshot, InputErrors
     let fit = fit_spec(doc.fit.as_ref(), &mut problems);
     let expiries = doc.slices.iter().map(|s| s.expiry.clone()).collect();
     let Some(as_of) = as_of else {
-        return Err(InputErrors { problems: problems.0 });
+        return Err(InputErrors::from_problems(problems.0));
     };
     problems.finish(ValidSnapshot {
         underlying: doc.underlying.clone(),
@@ -520,7 +526,7 @@ pub fn parse_swaps(text: &str) -> Result<ValidSwaps, InputErrors> {
     }
     let fit = fit_spec(doc.fit.as_ref(), &mut problems);
     let Some(as_of) = as_of else {
-        return Err(InputErrors { problems: problems.0 });
+        return Err(InputErrors::from_problems(problems.0));
     };
     problems.finish(ValidSwaps {
         underlying: doc.underlying.clone(),

@@ -7,7 +7,7 @@ use crate::analytics::smile::SmileCurve;
 use serde::Serialize;
 
 /// The analysis of a snapshot (or, from `logstrip fit`, of swap levels).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct AnalysisDoc {
     /// Underlying name, as given.
     pub underlying: String,
@@ -27,7 +27,7 @@ pub struct AnalysisDoc {
 }
 
 /// Swap levels at one expiry (annualised variance; vols are their square roots).
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct CurveDoc {
     /// Time to expiry, years.
     pub tau: f64,
@@ -61,7 +61,7 @@ pub struct CurveDoc {
 }
 
 /// Data quality of a slice.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct QualityDoc {
     /// Usable quotes.
     pub points: usize,
@@ -82,7 +82,7 @@ pub struct QualityDoc {
 }
 
 /// The fitted smile of a slice.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 #[serde(tag = "method", rename_all = "snake_case")]
 pub enum SmileDoc {
     /// Raw SVI parameters.
@@ -108,7 +108,7 @@ pub enum SmileDoc {
 }
 
 /// The model fit.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct FitDoc {
     /// `rough_heston` or `heston`.
     pub model: &'static str,
@@ -145,7 +145,7 @@ pub struct FitDoc {
 }
 
 /// Fitted parameters.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct ParamsDoc {
     /// Hurst exponent (rough Heston only).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -157,7 +157,7 @@ pub struct ParamsDoc {
 }
 
 /// Convexity at one expiry.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
 pub struct ConvexityDoc {
     /// Expiry, years.
     pub tau: f64,

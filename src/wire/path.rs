@@ -79,18 +79,41 @@ impl fmt::Display for Problem {
     }
 }
 
+/// Whether an input could not be read as a document at all, or was read and holds
+/// invalid values (the service answers 400 and 422 respectively).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum InputErrorKind {
+    /// Not well-formed: not JSON (or CSV) at all, or cut short.
+    Malformed,
+    /// Well-formed, but a field is missing, unknown, of the wrong type or out of range.
+    #[default]
+    Invalid,
+}
+
 /// Every problem found in an input, in document order; never empty.
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
 #[error("{}", .problems.iter().map(|p| p.to_string()).collect::<Vec<_>>().join("\n"))]
 pub struct InputErrors {
+    /// Malformed or invalid.
+    pub kind: InputErrorKind,
     /// The problems.
     pub problems: Vec<Problem>,
 }
 
 impl InputErrors {
-    /// A single problem.
+    /// A single invalid value.
     pub fn one(path: FieldPath, message: impl Into<String>) -> Self {
-        Self { problems: vec![Problem { path, message: message.into() }] }
+        Self::from_problems(vec![Problem { path, message: message.into() }])
+    }
+
+    /// A document that cannot be read at all.
+    pub fn malformed(path: FieldPath, message: impl Into<String>) -> Self {
+        Self { kind: InputErrorKind::Malformed, problems: vec![Problem { path, message: message.into() }] }
+    }
+
+    /// Invalid values.
+    pub fn from_problems(problems: Vec<Problem>) -> Self {
+        Self { kind: InputErrorKind::Invalid, problems }
     }
 }
 

@@ -1,0 +1,473 @@
+//! Handlers of the snapshot, fit, underlying and operational endpoints (history is in
+//! [`super::history`]).
+
+use super::body::JsonText;
+use super::docs::{self, StoredAnalysisDoc, UnderlyingsDoc};
+use super::error::{ApiError, ProblemDetails};
+use super::{AppState, MAX_WAIT_SECONDS, WAIT_RECHECK};
+use crate::analytics::calibrate::fit_leverage;
+use crate::store::{self, NewSnapshot, Store, StoredSnapshot, JSON_MEDIA_TYPE};
+use crate::wire::{self, output};
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Path, Query, Request, State};
+use axum::http::{header, HeaderMap, HeaderValue, StatusCode};
+use axum::middleware::Next;
+use axum::response::{IntoResponse, Response};
+use axum::Json;
+use chrono::{DateTime, SecondsFormat, Utc};
+use serde::Deserialize;
+use serde_json::{Map, Value};
+use std::time::{Duration, Instant};
+use utoipa::IntoParams;
+
+/// How long `/readyz` waits for the store.
+const READY_TIMEOUT: Duration = Duration::from_secs(2);
+
+/// RFC 3339 with microseconds, UTC (`Z`), as every stored time is shown.
+pub fn rfc3339(t: DateTime<Utc>) -> String {
+    t.to_rfc3339_opts(SecondsFormat::AutoSi, true)
+}
+
+/// Unwraps query parameters, naming a malformed query as such.
+pub fn query_params<T>(parsed: Result<Query<T>, QueryRejection>) -> Result<T, ApiError> {
+    parsed.map(|Query(q)| q).map_err(|e| ApiError::Parameter { name: "query", message: e.body_text() })
+}
+
+/// An analysed snapshot, ready to store.
+struct Analysed {
+    record: NewSnapshot,
+    fit_elapsed_us: Option<u64>,
+}
+
+/// Parses, validates and analyses a snapshot on the blocking pool; also digests its
+/// canonical form for idempotent storage.
+async fn analyse(state: &AppState, text: String) -> Result<Analysed, ApiError> {
+    let outcome = tokio::task::spawn_blocking(move || -> Result<Analysed, ApiError> {
+        let (snapshot, analysis) = wire::analyze_text(&text)?;
+        let doc = output::analysis_doc(&snapshot, &analysis);
+        let canonical: Value = serde_json::from_str(&text).map_err(|e| ApiError::Internal(e.to_string()))?;
+        let analysis_json = serde_json::to_string(&doc).map_err(|e| ApiError::Internal(e.to_string()))?;
+        Ok(Analysed {
+            fit_elapsed_us: doc.fit.as_ref().map(|f| f.elapsed_us),
+            record: NewSnapshot::new(
+                snapshot.underlying,
+                snapshot.as_of,
+                store::canonical_json_sha256(&canonical),
+                JSON_MEDIA_TYPE,
+                text,
+                analysis_json,
+            ),
+        })
+    })
+    .await
+    .map_err(|e| ApiError::Internal(format!("analysis task failed: {e}")))?;
+    let metrics = state.metrics();
+    match &outcome {
+        Ok(a) => {
+            metrics.analysis("ok");
+            if let Some(us) = a.fit_elapsed_us {
+                metrics.fit_duration_us(us);
+            }
+        }
+        Err(ApiError::Input(_)) => metrics.analysis("invalid_input"),
+        Err(_) => {}
+    }
+    outcome
+}
+
+/// The response body of a stored analysis: `id`, `underlying`, `as_of`, `stored_at`,
+/// the analysis fields, and the original `input` when asked for.
+fn stored_body(
+    id: i64,
+    stored_at: DateTime<Utc>,
+    analysis_json: &str,
+    input: Option<&(String, String)>,
+) -> Result<Value, ApiError> {
+    let analysis: Map<String, Value> =
+        serde_json::from_str(analysis_json).map_err(|e| ApiError::Internal(format!("stored analysis {id}: {e}")))?;
+    let mut body = Map::new();
+    body.insert("id".into(), Value::from(id));
+    for key in ["underlying", "as_of"] {
+        body.insert(key.into(), analysis.get(key).cloned().unwrap_or(Value::Null));
+    }
+    body.insert("stored_at".into(), Value::from(rfc3339(stored_at)));
+    for (key, value) in analysis {
+        body.entry(key).or_insert(value);
+    }
+    if let Some((media_type, text)) = input {
+        let value = if media_type == JSON_MEDIA_TYPE {
+            serde_json::from_str(text).unwrap_or_else(|_| Value::String(text.clone()))
+        } else {
+            Value::String(text.clone())
+        };
+        body.insert("input".into(), value);
+    }
+    Ok(Value::Object(body))
+}
+
+fn stored_record_body(record: &StoredSnapshot) -> Result<Value, ApiError> {
+    stored_body(record.id, record.stored_at, &record.analysis, record.input.as_ref())
+}
+
+/// Strong entity tag of a stored snapshot.
+fn etag(id: i64) -> String {
+    format!("\"{id}\"")
+}
+
+fn etag_header(id: i64) -> HeaderValue {
+    HeaderValue::from_str(&etag(id)).unwrap_or_else(|_| HeaderValue::from_static("\"0\""))
+}
+
+/// Whether an `If-None-Match` value matches `tag` (weak comparison, RFC 9110 13.1.2).
+fn if_none_match(header_value: &str, tag: &str) -> bool {
+    header_value
+        .split(',')
+        .map(str::trim)
+        .any(|candidate| candidate == "*" || candidate.trim_start_matches("W/") == tag)
+}
+
+fn store_failed(state: &AppState, operation: &str, e: store::StoreError) -> ApiError {
+    state.metrics().store_error(operation);
+    e.into()
+}
+
+/// Analyse a snapshot and store it.
+#[utoipa::path(
+    post, path = "/v1/snapshots", tag = "snapshots",
+    request_body(content = crate::wire::input::SnapshotDoc, content_type = "application/json",
+                 example = json!(docs::snapshot_example())),
+    responses(
+        (status = 201, description = "Stored; `Location` names the new resource", body = StoredAnalysisDoc,
+         headers(("Location" = String, description = "Path of the stored snapshot"))),
+        (status = 200, description = "The same content was stored before for this underlying and `as_of`; its id",
+         body = StoredAnalysisDoc, headers(("Location" = String, description = "Path of the stored snapshot"))),
+        (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 403, description = "Read-only token", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 413, description = "Body over the limit", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 415, description = "Not `application/json`", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "Invalid values, each with its JSON pointer", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn post_snapshot(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
+    let analysed = analyse(&state, text).await?;
+    let analysis_json = analysed.record.analysis.clone();
+    let inserted = state.store().insert(analysed.record).await.map_err(|e| store_failed(&state, "insert", e))?;
+    let location = HeaderValue::from_str(&format!("/v1/snapshots/{}", inserted.id))
+        .map_err(|e| ApiError::Internal(e.to_string()))?;
+    if inserted.created {
+        state.announce_change();
+        let body = stored_body(inserted.id, inserted.stored_at, &analysis_json, None)?;
+        Ok((StatusCode::CREATED, [(header::LOCATION, location)], Json(body)).into_response())
+    } else {
+        let record = state
+            .store()
+            .get(inserted.id, false)
+            .await
+            .map_err(|e| store_failed(&state, "get", e))?
+            .ok_or_else(|| ApiError::Internal(format!("snapshot {} vanished", inserted.id)))?;
+        Ok((StatusCode::OK, [(header::LOCATION, location)], Json(stored_record_body(&record)?)).into_response())
+    }
+}
+
+/// Analyse a snapshot without storing it.
+#[utoipa::path(
+    post, path = "/v1/analyze", tag = "snapshots",
+    request_body(content = crate::wire::input::SnapshotDoc, content_type = "application/json",
+                 example = json!(docs::snapshot_example())),
+    responses(
+        (status = 200, description = "The analysis", body = crate::wire::output::AnalysisDoc),
+        (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 403, description = "Read-only token", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 413, description = "Body over the limit", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 415, description = "Not `application/json`", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "Invalid values, each with its JSON pointer", body = ProblemDetails, content_type = "application/problem+json"),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn post_analyze(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
+    let analysed = analyse(&state, text).await?;
+    let body: Value = serde_json::from_str(&analysed.record.analysis).map_err(|e| ApiError::Internal(e.to_string()))?;
+    Ok(Json(body).into_response())
+}
+
+/// Fit the model to swap levels.
+#[utoipa::path(
+    post, path = "/v1/fits", tag = "fits",
+    request_body(content = crate::wire::input::SwapsDoc, content_type = "application/json",
+                 example = json!(docs::swaps_example())),
+    responses(
+        (status = 200, description = "The swaps as given, with forward variance, and the fit", body = crate::wire::output::AnalysisDoc),
+        (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 403, description = "Read-only token", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 413, description = "Body over the limit", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 415, description = "Not `application/json`", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "Invalid values, each with its JSON pointer", body = ProblemDetails, content_type = "application/problem+json"),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn post_fit(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
+    let doc = tokio::task::spawn_blocking(move || -> Result<output::AnalysisDoc, ApiError> {
+        let swaps = wire::parse_swaps(&text)?;
+        let fit = swaps.fit.as_ref().map(|spec| fit_leverage(&swaps.target, spec));
+        Ok(output::swaps_doc(&swaps, fit.as_ref()))
+    })
+    .await
+    .map_err(|e| ApiError::Internal(format!("fit task failed: {e}")))??;
+    if let Some(fit) = &doc.fit {
+        state.metrics().fit_duration_us(fit.elapsed_us);
+    }
+    Ok(Json(doc).into_response())
+}
+
+/// Query of `GET /v1/snapshots/{id}`.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct SnapshotQuery {
+    /// `input` adds the original snapshot to the response.
+    pub include: Option<String>,
+}
+
+/// A stored analysis.
+#[utoipa::path(
+    get, path = "/v1/snapshots/{id}", tag = "snapshots",
+    params(("id" = i64, Path, description = "Snapshot id"), SnapshotQuery),
+    responses(
+        (status = 200, description = "The stored analysis", body = StoredAnalysisDoc,
+         headers(("ETag" = String, description = "Entity tag of the snapshot"))),
+        (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 404, description = "No such snapshot", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn get_snapshot(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+    query: Result<Query<SnapshotQuery>, QueryRejection>,
+) -> Result<Response, ApiError> {
+    let query = query_params(query)?;
+    let with_input = match query.include.as_deref() {
+        None | Some("") => false,
+        Some("input") => true,
+        Some(other) => {
+            return Err(ApiError::Parameter { name: "include", message: format!("must be `input`, got {other:?}") })
+        }
+    };
+    let not_found = || ApiError::NotFound(format!("no snapshot with id {id:?}"));
+    let numeric: i64 = id.parse().map_err(|_| not_found())?;
+    let record = state
+        .store()
+        .get(numeric, with_input)
+        .await
+        .map_err(|e| store_failed(&state, "get", e))?
+        .ok_or_else(not_found)?;
+    Ok(([(header::ETAG, etag_header(record.id))], Json(stored_record_body(&record)?)).into_response())
+}
+
+/// Every underlying with its latest `as_of` and snapshot count.
+#[utoipa::path(
+    get, path = "/v1/underlyings", tag = "underlyings",
+    responses(
+        (status = 200, description = "Underlyings by name", body = UnderlyingsDoc),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn get_underlyings(State(state): State<AppState>) -> Result<Response, ApiError> {
+    let list = state.store().underlyings().await.map_err(|e| store_failed(&state, "underlyings", e))?;
+    Ok(Json(UnderlyingsDoc::from(list)).into_response())
+}
+
+/// Query of `GET /v1/underlyings/{underlying}/latest`.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct LatestQuery {
+    /// With `If-None-Match` naming the current latest: hold the request up to this many
+    /// seconds (0 to 60) until a newer snapshot is stored.
+    pub wait: Option<String>,
+}
+
+fn parse_wait(wait: Option<&str>) -> Result<Duration, ApiError> {
+    let Some(text) = wait else {
+        return Ok(Duration::ZERO);
+    };
+    let invalid = || ApiError::Parameter {
+        name: "wait",
+        message: format!("must be a whole number of seconds from 0 to {MAX_WAIT_SECONDS}, got {text:?}"),
+    };
+    let seconds: u64 = text.trim().parse().map_err(|_| invalid())?;
+    if seconds > MAX_WAIT_SECONDS {
+        return Err(invalid());
+    }
+    Ok(Duration::from_secs(seconds))
+}
+
+/// The latest analysis of an underlying, with long polling.
+#[utoipa::path(
+    get, path = "/v1/underlyings/{underlying}/latest", tag = "underlyings",
+    params(
+        ("underlying" = String, Path, description = "Underlying name"),
+        ("If-None-Match" = Option<String>, Header, description = "ETag of the analysis the client has"),
+        LatestQuery
+    ),
+    responses(
+        (status = 200, description = "The latest stored analysis", body = StoredAnalysisDoc,
+         headers(("ETag" = String, description = "Entity tag of the latest snapshot"))),
+        (status = 304, description = "Nothing newer than `If-None-Match` (after waiting up to `wait` seconds)",
+         headers(("ETag" = String, description = "Entity tag of the latest snapshot"))),
+        (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn get_latest(
+    State(state): State<AppState>,
+    Path(underlying): Path<String>,
+    headers: HeaderMap,
+    query: Result<Query<LatestQuery>, QueryRejection>,
+) -> Result<Response, ApiError> {
+    let wait = parse_wait(query_params(query)?.wait.as_deref())?;
+    let client_tag = headers.get(header::IF_NONE_MATCH).and_then(|v| v.to_str().ok()).map(str::to_string);
+    let deadline = Instant::now() + wait;
+    let mut changes = state.inner.changes.subscribe();
+    let mut shutting_down = state.inner.shutting_down.clone();
+    let not_found = || ApiError::NotFound(format!("no snapshot of underlying {underlying:?}"));
+    loop {
+        changes.borrow_and_update();
+        let id = state
+            .store()
+            .latest_id(&underlying)
+            .await
+            .map_err(|e| store_failed(&state, "latest", e))?
+            .ok_or_else(not_found)?;
+        if !client_tag.as_deref().is_some_and(|t| if_none_match(t, &etag(id))) {
+            let record = state
+                .store()
+                .latest(&underlying)
+                .await
+                .map_err(|e| store_failed(&state, "latest", e))?
+                .ok_or_else(not_found)?;
+            return Ok((
+                [(header::ETAG, etag_header(record.id)), (header::CACHE_CONTROL, HeaderValue::from_static("no-cache"))],
+                Json(stored_record_body(&record)?),
+            )
+                .into_response());
+        }
+        let now = Instant::now();
+        if now >= deadline || *shutting_down.borrow() {
+            return Ok((StatusCode::NOT_MODIFIED, [(header::ETAG, etag_header(id))]).into_response());
+        }
+        tokio::select! {
+            _ = changes.changed() => {}
+            _ = tokio::time::sleep((deadline - now).min(WAIT_RECHECK)) => {}
+            _ = shutting_down.wait_for(|down| *down) => {}
+        }
+    }
+}
+
+/// Liveness: the process answers.
+#[utoipa::path(get, path = "/healthz", tag = "operations",
+    responses((status = 200, description = "Alive", body = docs::StatusDoc)))]
+pub async fn healthz() -> Json<docs::StatusDoc> {
+    Json(docs::StatusDoc { status: "ok".into() })
+}
+
+/// Readiness: the store answers.
+#[utoipa::path(get, path = "/readyz", tag = "operations",
+    responses(
+        (status = 200, description = "Ready", body = docs::StatusDoc),
+        (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ))]
+pub async fn readyz(State(state): State<AppState>) -> Result<Json<docs::StatusDoc>, ApiError> {
+    match tokio::time::timeout(READY_TIMEOUT, state.store().ping()).await {
+        Ok(Ok(())) => Ok(Json(docs::StatusDoc { status: "ready".into() })),
+        Ok(Err(e)) => Err(ApiError::StoreUnavailable(store_failed(&state, "ping", e).to_string())),
+        Err(_) => {
+            state.metrics().store_error("ping");
+            Err(ApiError::StoreUnavailable(format!("no answer within {} s", READY_TIMEOUT.as_secs())))
+        }
+    }
+}
+
+/// Prometheus metrics.
+#[utoipa::path(get, path = "/metrics", tag = "operations",
+    responses(
+        (status = 200, description = "Prometheus text exposition format", body = String, content_type = "text/plain"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+    ),
+    security((), ("bearer" = [])))]
+pub async fn get_metrics(State(state): State<AppState>) -> Response {
+    (
+        [(header::CONTENT_TYPE, HeaderValue::from_static("text/plain; version=0.0.4; charset=utf-8"))],
+        state.metrics().render(),
+    )
+        .into_response()
+}
+
+/// This service's OpenAPI document.
+#[utoipa::path(get, path = "/openapi.json", tag = "operations",
+    responses((status = 200, description = "OpenAPI 3.1 document", body = Object)))]
+pub async fn get_openapi() -> Response {
+    ([(header::CONTENT_TYPE, HeaderValue::from_static("application/json"))], docs::openapi_json()).into_response()
+}
+
+/// Unknown paths.
+pub async fn not_found(request: Request) -> ApiError {
+    ApiError::NotFound(format!("no route for {}", request.uri().path()))
+}
+
+/// Known paths, wrong method.
+pub async fn method_not_allowed(request: Request) -> ApiError {
+    ApiError::MethodNotAllowed(format!("{} is not allowed on {}", request.method(), request.uri().path()))
+}
+
+/// Middleware: ends a request that takes longer than the configured limit.
+pub async fn limit_time(State(state): State<AppState>, request: Request, next: Next) -> Response {
+    let limit = state.settings().request_timeout;
+    match tokio::time::timeout(limit, next.run(request)).await {
+        Ok(response) => response,
+        Err(_) => ApiError::Timeout { seconds: limit.as_secs() }.into_response(),
+    }
+}
+
+/// Wakes long-polling readers whenever another replica stores a snapshot.
+pub async fn forward_store_notifications(url: String, state: AppState, stop: tokio::sync::watch::Receiver<bool>) {
+    store::postgres::forward_notifications(&url, || state.announce_change(), stop).await;
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn entity_tags_compare_weakly_and_accept_lists() {
+        assert!(if_none_match("\"7\"", "\"7\""));
+        assert!(if_none_match("W/\"7\"", "\"7\""));
+        assert!(if_none_match("\"3\", \"7\"", "\"7\""));
+        assert!(if_none_match("*", "\"7\""));
+        assert!(!if_none_match("\"8\"", "\"7\""));
+    }
+
+    #[test]
+    fn wait_is_bounded() {
+        assert_eq!(parse_wait(None).unwrap(), Duration::ZERO);
+        assert_eq!(parse_wait(Some("60")).unwrap(), Duration::from_secs(60));
+        assert!(parse_wait(Some("61")).is_err());
+        assert!(parse_wait(Some("-1")).is_err());
+        assert!(parse_wait(Some("x")).is_err());
+    }
+}

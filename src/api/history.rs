@@ -1,0 +1,387 @@
+//! `GET /v1/underlyings/{underlying}/history`: fits and term-structure points over a
+//! time range, paged by an opaque cursor, as JSON or CSV (one row per snapshot and
+//! expiry).
+
+use super::error::{ApiError, ProblemDetails};
+use super::handlers::{query_params, rfc3339};
+use super::AppState;
+use crate::store::{HistoryPosition, HistoryQuery, Store, StoredSnapshot};
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Path, Query, State};
+use axum::http::{header, HeaderMap, HeaderValue};
+use axum::response::{IntoResponse, Response};
+use axum::Json;
+use chrono::{DateTime, Utc};
+use serde::{Deserialize, Serialize};
+use utoipa::{IntoParams, ToSchema};
+
+/// Default page size.
+pub const DEFAULT_LIMIT: u32 = 100;
+/// Largest page size.
+pub const MAX_LIMIT: u32 = 1000;
+
+/// Query of the history endpoint.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct HistoryParams {
+    /// Inclusive start of `as_of`, RFC 3339.
+    pub from: Option<String>,
+    /// Exclusive end of `as_of`, RFC 3339.
+    pub to: Option<String>,
+    /// Snapshots per page, 1 to 1000 (default 100).
+    pub limit: Option<String>,
+    /// `next_cursor` of the previous page.
+    pub cursor: Option<String>,
+    /// `json` (default) or `csv`; `Accept: text/csv` also selects CSV.
+    pub format: Option<String>,
+}
+
+/// A page of history.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct HistoryPage {
+    /// Underlying name.
+    pub underlying: String,
+    /// Snapshots in ascending `as_of` order.
+    pub items: Vec<HistoryItem>,
+    /// Pass as `cursor` for the next page; absent on the last page.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub next_cursor: Option<String>,
+}
+
+/// One stored snapshot in the history.
+#[derive(Debug, Serialize, ToSchema)]
+pub struct HistoryItem {
+    /// Snapshot id.
+    pub id: i64,
+    /// Valuation time, RFC 3339.
+    pub as_of: String,
+    /// Commit time, RFC 3339.
+    pub stored_at: String,
+    /// The model fit, when one was made.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub fit: Option<HistoryFit>,
+    /// Term structure.
+    pub curve: Vec<HistoryPoint>,
+}
+
+/// The fit of one snapshot, as stored.
+#[derive(Debug, Clone, Serialize, Deserialize, ToSchema)]
+pub struct HistoryFit {
+    /// `rough_heston` or `heston`.
+    pub model: String,
+    /// `converged`, `max_iterations` or `failed`.
+    pub status: String,
+    /// Hurst exponent (rough Heston).
+    #[serde(default)]
+    pub hurst: Option<f64>,
+    /// `rho * nu`.
+    #[serde(default)]
+    pub rho_nu: Option<f64>,
+    /// Mean reversion.
+    #[serde(default)]
+    pub mean_reversion: Option<f64>,
+    /// RMS distance between model and market leverage swaps.
+    #[serde(default)]
+    pub leverage_rmse: Option<f64>,
+}
+
+/// One expiry of one snapshot.
+#[derive(Debug, Clone, Serialize, Deserialize, ToSchema)]
+pub struct HistoryPoint {
+    /// Time to expiry, years.
+    pub tau: f64,
+    /// Expiry, when given as a date.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub expiry: Option<String>,
+    /// Variance swap level, annualised variance.
+    pub variance_swap: f64,
+    /// Gamma swap level.
+    pub gamma_swap: f64,
+    /// Leverage swap level.
+    pub leverage_swap: f64,
+    /// Forward variance ending at this expiry.
+    #[serde(default)]
+    pub forward_variance: Option<f64>,
+    /// The fitted model's leverage swap.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub model_leverage_swap: Option<f64>,
+}
+
+/// The parts of a stored analysis the history shows.
+#[derive(Deserialize)]
+struct StoredView {
+    curve: Vec<HistoryPoint>,
+    #[serde(default)]
+    fit: Option<StoredFitView>,
+}
+
+#[derive(Deserialize)]
+struct StoredFitView {
+    model: String,
+    status: String,
+    params: ParamsView,
+    #[serde(default)]
+    leverage_rmse: Option<f64>,
+    #[serde(default)]
+    model_leverage_swap: Vec<f64>,
+}
+
+#[derive(Deserialize)]
+struct ParamsView {
+    #[serde(default)]
+    hurst: Option<f64>,
+    #[serde(default)]
+    rho_nu: Option<f64>,
+    #[serde(default)]
+    mean_reversion: Option<f64>,
+}
+
+fn history_item(record: &StoredSnapshot) -> Result<HistoryItem, ApiError> {
+    let view: StoredView = serde_json::from_str(&record.analysis)
+        .map_err(|e| ApiError::Internal(format!("stored analysis {}: {e}", record.id)))?;
+    let mut curve = view.curve;
+    let fit = view.fit.map(|f| {
+        for (point, model) in curve.iter_mut().zip(&f.model_leverage_swap) {
+            point.model_leverage_swap = Some(*model);
+        }
+        HistoryFit {
+            model: f.model,
+            status: f.status,
+            hurst: f.params.hurst,
+            rho_nu: f.params.rho_nu,
+            mean_reversion: f.params.mean_reversion,
+            leverage_rmse: f.leverage_rmse,
+        }
+    });
+    Ok(HistoryItem { id: record.id, as_of: rfc3339(record.as_of), stored_at: rfc3339(record.stored_at), fit, curve })
+}
+
+/// The opaque cursor: the position of the last row of a page.
+fn encode_cursor(position: HistoryPosition) -> String {
+    format!("{:x}-{:x}", position.as_of.timestamp_micros(), position.id)
+}
+
+fn decode_cursor(text: &str) -> Result<HistoryPosition, ApiError> {
+    let invalid = || ApiError::Parameter { name: "cursor", message: "not a cursor returned by this endpoint".into() };
+    let (micros, id) = text.split_once('-').ok_or_else(invalid)?;
+    let micros = i64::from_str_radix(micros, 16).map_err(|_| invalid())?;
+    let id = i64::from_str_radix(id, 16).map_err(|_| invalid())?;
+    let as_of = DateTime::from_timestamp_micros(micros).ok_or_else(invalid)?;
+    Ok(HistoryPosition { as_of, id })
+}
+
+fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<Utc>>, ApiError> {
+    text.map(|t| {
+        DateTime::parse_from_rfc3339(t).map(|d| d.with_timezone(&Utc)).map_err(|e| ApiError::Parameter {
+            name,
+            message: format!("must be an RFC 3339 time such as 2026-11-30T15:30:00Z ({e}), got {t:?}"),
+        })
+    })
+    .transpose()
+}
+
+fn parse_limit(text: Option<&str>) -> Result<u32, ApiError> {
+    let Some(text) = text else {
+        return Ok(DEFAULT_LIMIT);
+    };
+    match text.trim().parse::<u32>() {
+        Ok(n) if (1..=MAX_LIMIT).contains(&n) => Ok(n),
+        _ => Err(ApiError::Parameter { name: "limit", message: format!("must be 1 to {MAX_LIMIT}, got {text:?}") }),
+    }
+}
+
+/// Whether the client asked for CSV.
+fn wants_csv(format: Option<&str>, headers: &HeaderMap) -> Result<bool, ApiError> {
+    match format {
+        Some("csv") => Ok(true),
+        Some("json") => Ok(false),
+        Some(other) => {
+            Err(ApiError::Parameter { name: "format", message: format!("must be `json` or `csv`, got {other:?}") })
+        }
+        None => Ok(headers
+            .get(header::ACCEPT)
+            .and_then(|v| v.to_str().ok())
+            .is_some_and(|accept| accept.split(',').any(|m| m.trim().starts_with("text/csv")))),
+    }
+}
+
+/// CSV columns, one row per snapshot and expiry.
+pub const CSV_HEADER: [&str; 17] = [
+    "snapshot_id",
+    "underlying",
+    "as_of",
+    "stored_at",
+    "tau",
+    "expiry",
+    "variance_swap",
+    "gamma_swap",
+    "leverage_swap",
+    "forward_variance",
+    "model_leverage_swap",
+    "fit_model",
+    "fit_status",
+    "hurst",
+    "rho_nu",
+    "mean_reversion",
+    "leverage_rmse",
+];
+
+/// A number as JSON writes it (shortest round-trip form, exponent for tiny values);
+/// empty when absent.
+fn cell(x: Option<f64>) -> String {
+    x.map(number).unwrap_or_default()
+}
+
+fn number(x: f64) -> String {
+    serde_json::Value::from(x).to_string()
+}
+
+fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
+    let failed = |e: csv::Error| ApiError::Internal(format!("CSV: {e}"));
+    let mut writer = csv::Writer::from_writer(Vec::new());
+    writer.write_record(CSV_HEADER).map_err(failed)?;
+    for item in &page.items {
+        let fit = item.fit.as_ref();
+        for p in &item.curve {
+            writer
+                .write_record([
+                    item.id.to_string(),
+                    page.underlying.clone(),
+                    item.as_of.clone(),
+                    item.stored_at.clone(),
+                    number(p.tau),
+                    p.expiry.clone().unwrap_or_default(),
+                    number(p.variance_swap),
+                    number(p.gamma_swap),
+                    number(p.leverage_swap),
+                    cell(p.forward_variance),
+                    cell(p.model_leverage_swap),
+                    fit.map(|f| f.model.clone()).unwrap_or_default(),
+                    fit.map(|f| f.status.clone()).unwrap_or_default(),
+                    cell(fit.and_then(|f| f.hurst)),
+                    cell(fit.and_then(|f| f.rho_nu)),
+                    cell(fit.and_then(|f| f.mean_reversion)),
+                    cell(fit.and_then(|f| f.leverage_rmse)),
+                ])
+                .map_err(failed)?;
+        }
+    }
+    writer.into_inner().map_err(|e| ApiError::Internal(format!("CSV: {e}")))
+}
+
+/// Fits and term-structure points of an underlying over time.
+#[utoipa::path(
+    get, path = "/v1/underlyings/{underlying}/history", tag = "underlyings",
+    params(
+        ("underlying" = String, Path, description = "Underlying name"),
+        ("Accept" = Option<String>, Header, description = "`text/csv` for CSV"),
+        HistoryParams
+    ),
+    responses(
+        (status = 200, description = "A page of history; `Link` with `rel=\"next\"` when more follow",
+         content((HistoryPage = "application/json"), (String = "text/csv")),
+         headers(("Link" = String, description = "URL of the next page (RFC 8288)"))),
+        (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn get_history(
+    State(state): State<AppState>,
+    Path(underlying): Path<String>,
+    headers: HeaderMap,
+    params: Result<Query<HistoryParams>, QueryRejection>,
+) -> Result<Response, ApiError> {
+    let params = query_params(params)?;
+    let csv = wants_csv(params.format.as_deref(), &headers)?;
+    let query = HistoryQuery {
+        underlying: underlying.clone(),
+        from: parse_time("from", params.from.as_deref())?,
+        to: parse_time("to", params.to.as_deref())?,
+        after: params.cursor.as_deref().map(decode_cursor).transpose()?,
+        limit: parse_limit(params.limit.as_deref())?,
+    };
+    let store_error = |e| {
+        state.metrics().store_error("history");
+        ApiError::from(e)
+    };
+    // One row more than asked tells whether a next page exists.
+    let mut records =
+        state.store().history(&HistoryQuery { limit: query.limit + 1, ..query.clone() }).await.map_err(store_error)?;
+    if records.is_empty()
+        && query.after.is_none()
+        && state.store().latest_id(&underlying).await.map_err(store_error)?.is_none()
+    {
+        return Err(ApiError::NotFound(format!("no snapshot of underlying {underlying:?}")));
+    }
+    let more = records.len() > query.limit as usize;
+    records.truncate(query.limit as usize);
+    let next_cursor =
+        more.then(|| records.last().map(|r| encode_cursor(HistoryPosition { as_of: r.as_of, id: r.id }))).flatten();
+    let items = records.iter().map(history_item).collect::<Result<Vec<_>, _>>()?;
+    let page = HistoryPage { underlying: underlying.clone(), items, next_cursor };
+    let mut response = if csv {
+        ([(header::CONTENT_TYPE, HeaderValue::from_static("text/csv; charset=utf-8"))], csv_body(&page)?)
+            .into_response()
+    } else {
+        Json(&page).into_response()
+    };
+    if let Some(cursor) = &page.next_cursor {
+        let mut next = url_query(&[
+            ("from", params.from.as_deref()),
+            ("to", params.to.as_deref()),
+            ("limit", params.limit.as_deref()),
+            ("format", params.format.as_deref()),
+            ("cursor", Some(cursor)),
+        ]);
+        next = format!("</v1/underlyings/{}/history?{next}>; rel=\"next\"", percent_encode(&underlying));
+        if let Ok(value) = HeaderValue::from_str(&next) {
+            response.headers_mut().insert(header::LINK, value);
+        }
+    }
+    Ok(response)
+}
+
+/// Percent-encodes everything but RFC 3986 unreserved characters.
+fn percent_encode(text: &str) -> String {
+    text.bytes()
+        .map(|b| match b {
+            b'A'..=b'Z' | b'a'..=b'z' | b'0'..=b'9' | b'-' | b'.' | b'_' | b'~' => (b as char).to_string(),
+            other => format!("%{other:02X}"),
+        })
+        .collect()
+}
+
+fn url_query(pairs: &[(&str, Option<&str>)]) -> String {
+    pairs.iter().filter_map(|(k, v)| v.map(|v| format!("{k}={}", percent_encode(v)))).collect::<Vec<_>>().join("&")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn cursors_round_trip_and_reject_garbage() {
+        let position =
+            HistoryPosition { as_of: DateTime::from_timestamp_micros(1_796_052_600_123_456).unwrap(), id: 42 };
+        assert_eq!(decode_cursor(&encode_cursor(position)).unwrap(), position);
+        assert!(decode_cursor("zz").is_err());
+        assert!(decode_cursor("1-").is_err());
+    }
+
+    #[test]
+    fn limits_are_bounded() {
+        assert_eq!(parse_limit(None).unwrap(), DEFAULT_LIMIT);
+        assert_eq!(parse_limit(Some("1000")).unwrap(), 1000);
+        assert!(parse_limit(Some("0")).is_err());
+        assert!(parse_limit(Some("1001")).is_err());
+    }
+
+    #[test]
+    fn underlying_names_are_escaped_in_links() {
+        assert_eq!(percent_encode("A B/C"), "A%20B%2FC");
+    }
+}

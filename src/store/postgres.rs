@@ -1,0 +1,208 @@
+//! The shared store: PostgreSQL, for any number of `serve` replicas. Each insert also
+//! sends a `NOTIFY` on [`CHANNEL`] (delivered at commit) so that replicas wake their
+//! long-polling readers.
+
+use super::{HistoryQuery, Insertion, NewSnapshot, Store, StoreError, StoredSnapshot, UnderlyingSummary};
+use sqlx::postgres::{PgConnectOptions, PgPool, PgPoolOptions, PgRow};
+use sqlx::Row;
+use std::str::FromStr;
+use std::time::Duration;
+
+/// The notification channel announcing new snapshots (payload: the underlying).
+pub const CHANNEL: &str = "logstrip_snapshots";
+/// How long a request waits for a free connection before the store counts as unavailable.
+const ACQUIRE_TIMEOUT: Duration = Duration::from_secs(3);
+/// Connections per replica.
+const MAX_CONNECTIONS: u32 = 10;
+
+/// PostgreSQL implementation of [`Store`].
+#[derive(Debug, Clone)]
+pub struct PostgresStore {
+    pool: PgPool,
+    url: String,
+}
+
+fn snapshot_from_row(row: &PgRow, with_input: bool) -> Result<StoredSnapshot, StoreError> {
+    let input = if with_input {
+        Some((row.try_get::<String, _>("input_media_type")?, row.try_get::<String, _>("input")?))
+    } else {
+        None
+    };
+    Ok(StoredSnapshot {
+        id: row.try_get("id")?,
+        underlying: row.try_get("underlying")?,
+        as_of: row.try_get("as_of")?,
+        stored_at: row.try_get("stored_at")?,
+        analysis: row.try_get("analysis")?,
+        input,
+    })
+}
+
+impl PostgresStore {
+    /// Connects to and migrates the database at `url`.
+    ///
+    /// # Errors
+    /// [`StoreError`] when the server cannot be reached or the schema not migrated.
+    pub async fn open(url: &str) -> Result<Self, StoreError> {
+        let options = PgConnectOptions::from_str(url)
+            .map_err(|e| StoreError::Config(format!("{}: {e}", super::redact_url(url))))?;
+        let pool = PgPoolOptions::new()
+            .max_connections(MAX_CONNECTIONS)
+            .acquire_timeout(ACQUIRE_TIMEOUT)
+            .connect_with(options)
+            .await?;
+        sqlx::migrate!("./migrations/postgres").run(&pool).await?;
+        Ok(Self { pool, url: url.to_string() })
+    }
+
+    /// The URL this store was opened with (for a notification listener).
+    pub fn url(&self) -> &str {
+        &self.url
+    }
+}
+
+impl Store for PostgresStore {
+    async fn insert(&self, s: NewSnapshot) -> Result<Insertion, StoreError> {
+        let mut tx = self.pool.begin().await?;
+        let inserted = sqlx::query(
+            "INSERT INTO snapshots (underlying, as_of, content_sha256, input_media_type, input, analysis) \
+             VALUES ($1, $2, $3, $4, $5, $6) \
+             ON CONFLICT (underlying, as_of, content_sha256) DO NOTHING \
+             RETURNING id, stored_at",
+        )
+        .bind(&s.underlying)
+        .bind(s.as_of)
+        .bind(&s.content_sha256)
+        .bind(&s.input_media_type)
+        .bind(&s.input)
+        .bind(&s.analysis)
+        .fetch_optional(&mut *tx)
+        .await?;
+        let (row, created) = match inserted {
+            Some(row) => (row, true),
+            None => {
+                let row = sqlx::query(
+                    "SELECT id, stored_at FROM snapshots \
+                     WHERE underlying = $1 AND as_of = $2 AND content_sha256 = $3",
+                )
+                .bind(&s.underlying)
+                .bind(s.as_of)
+                .bind(&s.content_sha256)
+                .fetch_one(&mut *tx)
+                .await?;
+                (row, false)
+            }
+        };
+        if created {
+            sqlx::query("SELECT pg_notify($1, $2)").bind(CHANNEL).bind(&s.underlying).execute(&mut *tx).await?;
+        }
+        tx.commit().await?;
+        Ok(Insertion { id: row.try_get("id")?, stored_at: row.try_get("stored_at")?, created })
+    }
+
+    async fn get(&self, id: i64, with_input: bool) -> Result<Option<StoredSnapshot>, StoreError> {
+        let row = sqlx::query("SELECT * FROM snapshots WHERE id = $1").bind(id).fetch_optional(&self.pool).await?;
+        row.map(|r| snapshot_from_row(&r, with_input)).transpose()
+    }
+
+    async fn latest(&self, underlying: &str) -> Result<Option<StoredSnapshot>, StoreError> {
+        let row = sqlx::query(
+            "SELECT id, underlying, as_of, stored_at, analysis FROM snapshots \
+             WHERE underlying = $1 ORDER BY as_of DESC, id DESC LIMIT 1",
+        )
+        .bind(underlying)
+        .fetch_optional(&self.pool)
+        .await?;
+        row.map(|r| snapshot_from_row(&r, false)).transpose()
+    }
+
+    async fn latest_id(&self, underlying: &str) -> Result<Option<i64>, StoreError> {
+        Ok(sqlx::query_scalar("SELECT id FROM snapshots WHERE underlying = $1 ORDER BY as_of DESC, id DESC LIMIT 1")
+            .bind(underlying)
+            .fetch_optional(&self.pool)
+            .await?)
+    }
+
+    async fn underlyings(&self) -> Result<Vec<UnderlyingSummary>, StoreError> {
+        let rows = sqlx::query(
+            "SELECT underlying, MAX(as_of) AS latest, COUNT(*) AS n FROM snapshots \
+             GROUP BY underlying ORDER BY underlying",
+        )
+        .fetch_all(&self.pool)
+        .await?;
+        rows.iter()
+            .map(|r| {
+                Ok(UnderlyingSummary {
+                    underlying: r.try_get("underlying")?,
+                    latest_as_of: r.try_get("latest")?,
+                    snapshots: r.try_get("n")?,
+                })
+            })
+            .collect()
+    }
+
+    async fn history(&self, q: &HistoryQuery) -> Result<Vec<StoredSnapshot>, StoreError> {
+        let rows = sqlx::query(
+            "SELECT id, underlying, as_of, stored_at, analysis FROM snapshots \
+             WHERE underlying = $1 \
+               AND ($2::timestamptz IS NULL OR as_of >= $2) \
+               AND ($3::timestamptz IS NULL OR as_of < $3) \
+               AND ($4::timestamptz IS NULL OR as_of > $4 OR (as_of = $4 AND id > $5)) \
+             ORDER BY as_of, id LIMIT $6",
+        )
+        .bind(&q.underlying)
+        .bind(q.from)
+        .bind(q.to)
+        .bind(q.after.map(|p| p.as_of))
+        .bind(q.after.map(|p| p.id))
+        .bind(i64::from(q.limit))
+        .fetch_all(&self.pool)
+        .await?;
+        rows.iter().map(|r| snapshot_from_row(r, false)).collect()
+    }
+
+    async fn ping(&self) -> Result<(), StoreError> {
+        sqlx::query("SELECT 1").execute(&self.pool).await?;
+        Ok(())
+    }
+}
+
+/// Listens on [`CHANNEL`] and calls `on_change` for every notification, until `stop`
+/// turns `true`. Reconnects after a lost connection, calling `on_change` once more
+/// then, since notifications sent meanwhile are lost.
+pub async fn forward_notifications(url: &str, on_change: impl Fn(), mut stop: tokio::sync::watch::Receiver<bool>) {
+    const RECONNECT_DELAY: Duration = Duration::from_secs(1);
+    loop {
+        let listener = async {
+            let mut listener = sqlx::postgres::PgListener::connect(url).await?;
+            listener.listen(CHANNEL).await?;
+            Ok::<_, sqlx::Error>(listener)
+        };
+        match listener.await {
+            Ok(mut listener) => {
+                on_change();
+                loop {
+                    tokio::select! {
+                        received = listener.try_recv() => match received {
+                            Ok(Some(_)) => on_change(),
+                            Ok(None) => {
+                                tracing::warn!("notification connection lost; reconnecting");
+                                on_change();
+                            }
+                            Err(e) => {
+                                tracing::warn!(error = %e, "notification listener failed; reconnecting");
+                                break;
+                            }
+                        },
+                        _ = stop.wait_for(|down| *down) => return,
+                    }
+                }
+            }
+            Err(e) => tracing::warn!(error = %e, "cannot listen for store notifications; retrying"),
+        }
+        tokio::select! {
+            _ = tokio::time::sleep(RECONNECT_DELAY) => {}
+            _ = stop.wait_for(|down| *down) => return,
+        }
+    }
+}
