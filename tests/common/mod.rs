@@ -110,3 +110,172 @@ pub async fn post_json(server: &TestServer, path: &str, body: String) -> reqwest
         .await
         .expect("request")
 }
+
+/// A `logstrip serve` child process.
+pub struct ServeProcess {
+    /// The child.
+    pub child: tokio::process::Child,
+    /// `http://127.0.0.1:PORT`.
+    pub base: String,
+    /// Standard error, collected after exit.
+    pub stderr: tokio::process::ChildStderr,
+}
+
+impl ServeProcess {
+    /// URL of a path.
+    pub fn url(&self, path: &str) -> String {
+        format!("{}{path}", self.base)
+    }
+
+    /// Sends SIGTERM and waits for the exit; returns the status and the log.
+    pub async fn terminate(mut self) -> (std::process::ExitStatus, String) {
+        let pid = self.child.id().expect("running child").to_string();
+        let sent = tokio::process::Command::new("kill").args(["-TERM", &pid]).status().await.expect("kill");
+        assert!(sent.success());
+        let status = tokio::time::timeout(Duration::from_secs(30), self.child.wait())
+            .await
+            .expect("exits within 30 s of SIGTERM")
+            .expect("wait");
+        let mut log = String::new();
+        use tokio::io::AsyncReadExt;
+        let _ = self.stderr.read_to_string(&mut log).await;
+        (status, log)
+    }
+}
+
+/// Starts `logstrip serve --listen 127.0.0.1:0` with extra arguments and waits for the
+/// line naming its address.
+pub async fn spawn_serve(args: &[&str]) -> ServeProcess {
+    use tokio::io::AsyncBufReadExt;
+    let mut child = tokio::process::Command::new(env!("CARGO_BIN_EXE_logstrip"))
+        .arg("serve")
+        .args(["--listen", "127.0.0.1:0"])
+        .args(args)
+        .env_remove("LOGSTRIP_TOKEN_FILE")
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .kill_on_drop(true)
+        .spawn()
+        .expect("spawn logstrip serve");
+    let stdout = child.stdout.take().expect("stdout");
+    let stderr = child.stderr.take().expect("stderr");
+    let mut lines = tokio::io::BufReader::new(stdout).lines();
+    let line = tokio::time::timeout(Duration::from_secs(60), lines.next_line())
+        .await
+        .expect("serve prints its address within 60 s")
+        .expect("read stdout")
+        .expect("a line on stdout");
+    let base = line.rsplit(' ').next().expect("address").to_string();
+    assert!(base.starts_with("http://127.0.0.1:"), "{line}");
+    ServeProcess { child, base, stderr }
+}
+
+/// A PostgreSQL database made for one test and dropped by [`TempDatabase::drop_now`].
+pub struct TempDatabase {
+    admin_url: String,
+    /// Database name.
+    pub name: String,
+    /// URL of the new database.
+    pub url: String,
+}
+
+/// The test server's URL, or `None` (and a note on stderr) when it is not configured.
+pub fn postgres_url(test: &str) -> Option<String> {
+    match std::env::var("LOGSTRIP_TEST_POSTGRES_URL") {
+        Ok(url) if !url.is_empty() => Some(url),
+        _ => {
+            eprintln!("{test}: skipped: LOGSTRIP_TEST_POSTGRES_URL is not set (.ci/run sets it)");
+            None
+        }
+    }
+}
+
+impl TempDatabase {
+    /// Creates a uniquely named database on the server at `admin_url`.
+    pub async fn create(admin_url: &str) -> Self {
+        use sqlx::Connection;
+        let nanos = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).expect("clock").as_nanos();
+        let name = format!("logstrip_test_{}_{}", std::process::id(), nanos % 1_000_000_000_000);
+        let mut admin = sqlx::PgConnection::connect(admin_url).await.expect("connect to LOGSTRIP_TEST_POSTGRES_URL");
+        sqlx::raw_sql(sqlx::AssertSqlSafe(format!("CREATE DATABASE {name}")))
+            .execute(&mut admin)
+            .await
+            .expect("create database");
+        let _ = admin.close().await;
+        let (server, _) = admin_url.rsplit_once('/').expect("URL with a database path");
+        Self { admin_url: admin_url.to_string(), url: format!("{server}/{name}"), name }
+    }
+
+    /// Drops the database (closing other sessions first).
+    pub async fn drop_now(self) {
+        use sqlx::Connection;
+        let mut admin = sqlx::PgConnection::connect(&self.admin_url).await.expect("connect");
+        sqlx::raw_sql(sqlx::AssertSqlSafe(format!("DROP DATABASE IF EXISTS {} WITH (FORCE)", self.name)))
+            .execute(&mut admin)
+            .await
+            .expect("drop database");
+        let _ = admin.close().await;
+    }
+}
+
+/// The [`logstrip::store::Store`] contract, run against any implementation: idempotent
+/// insert, revisions, latest, underlyings, history windows and paging, inputs kept.
+pub async fn exercise_store(store: &AnyStore) {
+    use chrono::{TimeZone, Utc};
+    use logstrip::store::{HistoryPosition, HistoryQuery, NewSnapshot, Store};
+    let at = |minute: u32| Utc.with_ymd_and_hms(2026, 11, 30, 15, minute, 0).single().expect("time");
+    let record = |underlying: &str, minute: u32, digest: &str| {
+        NewSnapshot::new(
+            underlying.to_string(),
+            at(minute),
+            digest.to_string(),
+            "application/json",
+            format!("{{\"underlying\":\"{underlying}\",\"minute\":{minute}}}"),
+            format!("{{\"underlying\":\"{underlying}\",\"as_of\":\"x\",\"curve\":[],\"minute\":{minute}}}"),
+        )
+    };
+    assert!(store.latest("ORIOLE").await.expect("latest").is_none());
+    let first = store.insert(record("ORIOLE", 10, "a")).await.expect("insert");
+    assert!(first.created);
+    let again = store.insert(record("ORIOLE", 10, "a")).await.expect("insert");
+    assert_eq!(
+        (again.id, again.stored_at, again.created),
+        (first.id, first.stored_at, false),
+        "same content, same row"
+    );
+    let revision = store.insert(record("ORIOLE", 10, "b")).await.expect("insert");
+    assert!(revision.created && revision.id > first.id, "other content at the same as_of is a new row");
+    let later = store.insert(record("ORIOLE", 20, "c")).await.expect("insert");
+    let earlier_posted_last = store.insert(record("ORIOLE", 5, "d")).await.expect("insert");
+    store.insert(record("HERON", 15, "e")).await.expect("insert");
+
+    assert_eq!(store.latest_id("ORIOLE").await.expect("latest id"), Some(later.id), "latest is the largest as_of");
+    let latest = store.latest("ORIOLE").await.expect("latest").expect("some");
+    assert_eq!((latest.id, latest.as_of), (later.id, at(20)));
+    assert!(latest.input.is_none());
+
+    let with_input = store.get(first.id, true).await.expect("get").expect("some");
+    assert_eq!(with_input.input, Some(("application/json".into(), "{\"underlying\":\"ORIOLE\",\"minute\":10}".into())));
+    assert!(store.get(first.id + 1000, false).await.expect("get").is_none());
+
+    let list = store.underlyings().await.expect("underlyings");
+    let names: Vec<(&str, i64)> = list.iter().map(|u| (u.underlying.as_str(), u.snapshots)).collect();
+    assert_eq!(names, vec![("HERON", 1), ("ORIOLE", 4)]);
+    assert_eq!(list[1].latest_as_of, at(20));
+
+    let query = |from, to, after, limit| HistoryQuery { underlying: "ORIOLE".into(), from, to, after, limit };
+    let all = store.history(&query(None, None, None, 100)).await.expect("history");
+    let ids: Vec<i64> = all.iter().map(|s| s.id).collect();
+    assert_eq!(ids, vec![earlier_posted_last.id, first.id, revision.id, later.id], "ascending (as_of, id)");
+    let window = store.history(&query(Some(at(10)), Some(at(20)), None, 100)).await.expect("history");
+    assert_eq!(
+        window.iter().map(|s| s.id).collect::<Vec<_>>(),
+        vec![first.id, revision.id],
+        "from inclusive, to exclusive"
+    );
+    let page = store.history(&query(None, None, None, 2)).await.expect("history");
+    let after = HistoryPosition { as_of: page[1].as_of, id: page[1].id };
+    let rest = store.history(&query(None, None, Some(after), 2)).await.expect("history");
+    assert_eq!(rest.iter().map(|s| s.id).collect::<Vec<_>>(), vec![revision.id, later.id], "keyset paging");
+    store.ping().await.expect("ping");
+}
