@@ -166,6 +166,23 @@ async fn every_error_status_is_problem_json() {
 }
 
 #[tokio::test]
+async fn requests_over_the_time_limit_get_408() {
+    let settings = ServiceSettings { request_timeout: Duration::from_secs(1), ..open_settings() };
+    let server = start_sqlite(settings).await;
+    post_json(&server, "/v1/snapshots", logstrip::api::docs::snapshot_example().to_string()).await;
+    let latest = server.client.get(server.url("/v1/underlyings/KESTREL50/latest")).send().await.unwrap();
+    let tag = latest.headers()["etag"].to_str().unwrap().to_string();
+    let held = server
+        .client
+        .get(server.url("/v1/underlyings/KESTREL50/latest?wait=10"))
+        .header("if-none-match", tag)
+        .send()
+        .await
+        .unwrap();
+    problem(held, StatusCode::REQUEST_TIMEOUT).await;
+}
+
+#[tokio::test]
 async fn latest_has_etag_304_and_long_polling() {
     let server = start_sqlite(open_settings()).await;
     let first: Value =
