@@ -23,6 +23,11 @@ pub fn norm_pdf(x: f64) -> f64 {
 /// the call for `k >= 0`), undiscounted and in units of the forward, for total
 /// implied variance `w` (variance x years). Zero for `w <= 0` (intrinsic value).
 pub fn otm_price(k: f64, w: f64) -> f64 {
+    otm_price_given_exp(k, w, k.exp())
+}
+
+/// [`otm_price`] with `exp_k = e^k` supplied by a caller that needs it anyway.
+pub fn otm_price_given_exp(k: f64, w: f64, exp_k: f64) -> f64 {
     if w.is_nan() || w <= 0.0 {
         return 0.0;
     }
@@ -30,9 +35,9 @@ pub fn otm_price(k: f64, w: f64) -> f64 {
     let d1 = -k / s + 0.5 * s;
     let d2 = d1 - s;
     if k >= 0.0 {
-        (norm_cdf(d1) - k.exp() * norm_cdf(d2)).max(0.0)
+        (norm_cdf(d1) - exp_k * norm_cdf(d2)).max(0.0)
     } else {
-        (k.exp() * norm_cdf(-d2) - norm_cdf(-d1)).max(0.0)
+        (exp_k * norm_cdf(-d2) - norm_cdf(-d1)).max(0.0)
     }
 }
 

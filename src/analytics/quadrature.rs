@@ -106,7 +106,13 @@ fn kronrod_panel<const N: usize, F: FnMut(f64) -> [f64; N]>(f: &mut F, lo: f64, 
         resasc *= half.abs();
         value[c] = kronrod[c] * half;
         let raw = ((kronrod[c] - gauss[c]) * half).abs();
-        error[c] = if resasc > 0.0 && raw > 0.0 { resasc * (200.0 * raw / resasc).powf(1.5).min(1.0) } else { raw };
+        error[c] = if resasc > 0.0 && raw > 0.0 {
+            // x^1.5 as x sqrt(x): the same number to an ulp, without a pow call.
+            let ratio = 200.0 * raw / resasc;
+            resasc * (ratio * ratio.sqrt()).min(1.0)
+        } else {
+            raw
+        };
     }
     Panel { lo, hi, value, error }
 }

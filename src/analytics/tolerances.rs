@@ -70,3 +70,24 @@ pub const CALIBRATION_MAX_ITERATIONS: u64 = 60;
 /// A fitted parameter within this fraction of its range from a bound is reported
 /// as "at the bound".
 pub const ACTIVE_BOUND_FRACTION: f64 = 1e-6;
+
+/// The SVI outer search over `(m, ln sigma)` stops when an accepted step lowers the
+/// reduced cost by less than this fraction of it. The cost is a difference of sums
+/// of order `sum w^2` and carries rounding of about 1e-16 of those sums, 1e-11 to
+/// 1e-10 of the cost itself on smiles fitted to a tenth of a vol point: below that
+/// a gain is rounding.
+pub const SVI_OUTER_COST_REL_TOL: f64 = 1e-12;
+
+/// The SVI outer search also stops when an accepted step moves `m` by less than this
+/// fraction of the quoted range and `ln sigma` by less than this (absolute): the
+/// parameters then agree to about 1e-10 relative, far inside the quotes' noise.
+pub const SVI_OUTER_STEP_TOL: f64 = 1e-10;
+
+/// Iteration cap of the SVI outer search; Gauss–Newton steps on the reduced cost
+/// take about ten (measured on the demo snapshot), the cap only stops a
+/// pathological input.
+pub const SVI_OUTER_MAX_ITERATIONS: usize = 100;
+
+/// Damping increases tried per iteration of the SVI outer search before the point
+/// is taken as a minimum to working precision (each multiplies the damping by 4).
+pub const SVI_OUTER_MAX_DAMPING_TRIES: usize = 30;
