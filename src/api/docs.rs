@@ -44,6 +44,9 @@ pub struct UnderlyingDoc {
 
 /// Every underlying in the store.
 #[derive(Debug, Serialize, ToSchema)]
+#[schema(example = json!({"underlyings": [
+    {"underlying": "KESTREL50", "latest_as_of": "2026-11-30T15:30:00Z", "snapshots": 38}
+]}))]
 pub struct UnderlyingsDoc {
     /// By name.
     pub underlyings: Vec<UnderlyingDoc>,
@@ -66,6 +69,7 @@ impl From<Vec<UnderlyingSummary>> for UnderlyingsDoc {
 
 /// Health or readiness.
 #[derive(Debug, Serialize, ToSchema)]
+#[schema(example = json!({"status": "ok"}))]
 pub struct StatusDoc {
     /// `ok` (alive) or `ready`.
     pub status: String,

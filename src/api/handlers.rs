@@ -16,7 +16,7 @@ use axum::response::{IntoResponse, Response};
 use axum::Json;
 use chrono::{DateTime, SecondsFormat, Utc};
 use serde::Deserialize;
-use serde_json::{Map, Value};
+use serde_json::Value;
 use std::time::{Duration, Instant};
 use utoipa::IntoParams;
 
@@ -39,20 +39,34 @@ struct Analysed {
     fit_elapsed_us: Option<u64>,
 }
 
-/// Parses, validates and analyses a snapshot on the blocking pool; also digests its
-/// canonical form for idempotent storage.
-async fn analyse(state: &AppState, text: String) -> Result<Analysed, ApiError> {
+/// Whether [`analyse`] also digests the input for idempotent storage.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Digest {
+    /// `POST /v1/snapshots`: the canonical form's SHA-256 identifies the content.
+    ForStorage,
+    /// `POST /v1/analyze`: nothing is stored.
+    Skip,
+}
+
+/// Parses, validates and analyses a snapshot on the blocking pool.
+async fn analyse(state: &AppState, text: String, digest: Digest) -> Result<Analysed, ApiError> {
     let outcome = tokio::task::spawn_blocking(move || -> Result<Analysed, ApiError> {
         let (snapshot, analysis) = wire::analyze_text(&text)?;
         let doc = output::analysis_doc(&snapshot, &analysis);
-        let canonical: Value = serde_json::from_str(&text).map_err(|e| ApiError::Internal(e.to_string()))?;
+        let content_sha256 = match digest {
+            Digest::ForStorage => {
+                let canonical: Value = serde_json::from_str(&text).map_err(|e| ApiError::Internal(e.to_string()))?;
+                store::canonical_json_sha256(&canonical)
+            }
+            Digest::Skip => String::new(),
+        };
         let analysis_json = serde_json::to_string(&doc).map_err(|e| ApiError::Internal(e.to_string()))?;
         Ok(Analysed {
             fit_elapsed_us: doc.fit.as_ref().map(|f| f.elapsed_us),
             record: NewSnapshot::new(
                 snapshot.underlying,
                 snapshot.as_of,
-                store::canonical_json_sha256(&canonical),
+                content_sha256,
                 JSON_MEDIA_TYPE,
                 text,
                 analysis_json,
@@ -75,37 +89,52 @@ async fn analyse(state: &AppState, text: String) -> Result<Analysed, ApiError> {
     outcome
 }
 
-/// The response body of a stored analysis: `id`, `underlying`, `as_of`, `stored_at`,
-/// the analysis fields, and the original `input` when asked for.
+/// A response with a JSON text body.
+fn json_text(status: StatusCode, headers: &[(header::HeaderName, HeaderValue)], body: String) -> Response {
+    let mut response = (status, body).into_response();
+    let map = response.headers_mut();
+    map.insert(header::CONTENT_TYPE, HeaderValue::from_static("application/json"));
+    for (name, value) in headers {
+        map.insert(name.clone(), value.clone());
+    }
+    response
+}
+
+/// The response body of a stored analysis: `id` and `stored_at`, then the analysis
+/// fields (`underlying`, `as_of`, ...), then the original `input` when asked for.
+/// Spliced as text: the stored analysis is JSON this service wrote, so it need not be
+/// parsed again for every read.
 fn stored_body(
     id: i64,
     stored_at: DateTime<Utc>,
     analysis_json: &str,
     input: Option<&(String, String)>,
-) -> Result<Value, ApiError> {
-    let analysis: Map<String, Value> =
-        serde_json::from_str(analysis_json).map_err(|e| ApiError::Internal(format!("stored analysis {id}: {e}")))?;
-    let mut body = Map::new();
-    body.insert("id".into(), Value::from(id));
-    for key in ["underlying", "as_of"] {
-        body.insert(key.into(), analysis.get(key).cloned().unwrap_or(Value::Null));
-    }
-    body.insert("stored_at".into(), Value::from(rfc3339(stored_at)));
-    for (key, value) in analysis {
-        body.entry(key).or_insert(value);
+) -> Result<String, ApiError> {
+    let fields = analysis_json
+        .trim()
+        .strip_prefix('{')
+        .and_then(|rest| rest.strip_suffix('}'))
+        .ok_or_else(|| ApiError::Internal(format!("stored analysis {id} is not a JSON object")))?;
+    let mut body = String::with_capacity(analysis_json.len() + 64);
+    body.push_str(&format!("{{\"id\":{id},\"stored_at\":\"{}\"", rfc3339(stored_at)));
+    if !fields.trim().is_empty() {
+        body.push(',');
+        body.push_str(fields);
     }
     if let Some((media_type, text)) = input {
-        let value = if media_type == JSON_MEDIA_TYPE {
-            serde_json::from_str(text).unwrap_or_else(|_| Value::String(text.clone()))
+        body.push_str(",\"input\":");
+        let is_json = media_type == JSON_MEDIA_TYPE && serde_json::from_str::<serde::de::IgnoredAny>(text).is_ok();
+        if is_json {
+            body.push_str(text.trim());
         } else {
-            Value::String(text.clone())
-        };
-        body.insert("input".into(), value);
+            body.push_str(&Value::String(text.clone()).to_string());
+        }
     }
-    Ok(Value::Object(body))
+    body.push('}');
+    Ok(body)
 }
 
-fn stored_record_body(record: &StoredSnapshot) -> Result<Value, ApiError> {
+fn stored_record_body(record: &StoredSnapshot) -> Result<String, ApiError> {
     stored_body(record.id, record.stored_at, &record.analysis, record.input.as_ref())
 }
 
@@ -153,7 +182,7 @@ fn store_failed(state: &AppState, operation: &str, e: store::StoreError) -> ApiE
     security((), ("bearer" = []))
 )]
 pub async fn post_snapshot(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
-    let analysed = analyse(&state, text).await?;
+    let analysed = analyse(&state, text, Digest::ForStorage).await?;
     let analysis_json = analysed.record.analysis.clone();
     let inserted = state.store().insert(analysed.record).await.map_err(|e| store_failed(&state, "insert", e))?;
     let location = HeaderValue::from_str(&format!("/v1/snapshots/{}", inserted.id))
@@ -161,7 +190,7 @@ pub async fn post_snapshot(State(state): State<AppState>, JsonText(text): JsonTe
     if inserted.created {
         state.announce_change();
         let body = stored_body(inserted.id, inserted.stored_at, &analysis_json, None)?;
-        Ok((StatusCode::CREATED, [(header::LOCATION, location)], Json(body)).into_response())
+        Ok(json_text(StatusCode::CREATED, &[(header::LOCATION, location)], body))
     } else {
         let record = state
             .store()
@@ -169,7 +198,7 @@ pub async fn post_snapshot(State(state): State<AppState>, JsonText(text): JsonTe
             .await
             .map_err(|e| store_failed(&state, "get", e))?
             .ok_or_else(|| ApiError::Internal(format!("snapshot {} vanished", inserted.id)))?;
-        Ok((StatusCode::OK, [(header::LOCATION, location)], Json(stored_record_body(&record)?)).into_response())
+        Ok(json_text(StatusCode::OK, &[(header::LOCATION, location)], stored_record_body(&record)?))
     }
 }
 
@@ -190,9 +219,8 @@ pub async fn post_snapshot(State(state): State<AppState>, JsonText(text): JsonTe
     security((), ("bearer" = []))
 )]
 pub async fn post_analyze(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
-    let analysed = analyse(&state, text).await?;
-    let body: Value = serde_json::from_str(&analysed.record.analysis).map_err(|e| ApiError::Internal(e.to_string()))?;
-    Ok(Json(body).into_response())
+    let analysed = analyse(&state, text, Digest::Skip).await?;
+    Ok(json_text(StatusCode::OK, &[], analysed.record.analysis))
 }
 
 /// Fit the model to swap levels.
@@ -269,7 +297,7 @@ pub async fn get_snapshot(
         .await
         .map_err(|e| store_failed(&state, "get", e))?
         .ok_or_else(not_found)?;
-    Ok(([(header::ETAG, etag_header(record.id))], Json(stored_record_body(&record)?)).into_response())
+    Ok(json_text(StatusCode::OK, &[(header::ETAG, etag_header(record.id))], stored_record_body(&record)?))
 }
 
 /// Every underlying with its latest `as_of` and snapshot count.
@@ -360,11 +388,14 @@ pub async fn get_latest(
                 .await
                 .map_err(|e| store_failed(&state, "latest", e))?
                 .ok_or_else(not_found)?;
-            return Ok((
-                [(header::ETAG, etag_header(record.id)), (header::CACHE_CONTROL, HeaderValue::from_static("no-cache"))],
-                Json(stored_record_body(&record)?),
-            )
-                .into_response());
+            return Ok(json_text(
+                StatusCode::OK,
+                &[
+                    (header::ETAG, etag_header(record.id)),
+                    (header::CACHE_CONTROL, HeaderValue::from_static("no-cache")),
+                ],
+                stored_record_body(&record)?,
+            ));
         }
         let now = Instant::now();
         if now >= deadline || *shutting_down.borrow() {

@@ -8,6 +8,18 @@ use serde::Serialize;
 
 /// The analysis of a snapshot (or, from `logstrip fit`, of swap levels).
 #[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
+#[schema(example = json!({
+    "underlying": "KESTREL50", "as_of": "2026-11-30T15:30:00Z", "spot": 4210.5, "smile": "svi",
+    "curve": [{"tau": 0.0493, "expiry": "2026-12-18T21:00:00Z", "forward": 4215.2, "discount": 0.9975,
+               "variance_swap": 0.0406, "variance_swap_vol": 0.2015, "gamma_swap": 0.0399,
+               "gamma_swap_vol": 0.1998, "leverage_swap": -0.0007, "forward_variance": 0.0406,
+               "quality": {"points": 60, "excluded_points": 0, "wing_share": 0.002, "smile_rmse_vol": 0.0004,
+                           "integration_error": 1e-15, "butterfly_ok": true, "calendar_ok": true, "warnings": []},
+               "smile": {"method": "svi", "a": 0.0011, "b": 0.0152, "rho": -0.62, "m": 0.012, "sigma": 0.045}}],
+    "fit": {"model": "rough_heston", "params": {"hurst": 0.08, "rho_nu": -0.45, "mean_reversion": 0.4},
+            "fixed": [], "status": "converged", "iterations": 12, "evaluations": 15, "leverage_rmse": 1.2e-7,
+            "model_leverage_swap": [-0.00065], "active_bounds": [], "elapsed_us": 240}
+}))]
 pub struct AnalysisDoc {
     /// Underlying name, as given.
     pub underlying: String,
