@@ -4,7 +4,8 @@
 //! Flow: validated [`slice::Slice`]s -> [`smile`] fit per expiry -> [`replication`]
 //! of variance, gamma and leverage swaps -> [`term`] structure and forward
 //! variance -> [`calibrate`] an affine forward-variance model ([`models`]) to the
-//! leverage swaps. [`analysis::analyze`] runs the whole chain.
+//! leverage swaps. [`analysis::analyze`] runs the whole chain; [`risk`] values seasoned
+//! swap positions on its result, with [`realized`] variance from closes.
 
 pub mod analysis;
 pub mod black;
@@ -12,7 +13,9 @@ pub mod calibrate;
 pub mod levenberg;
 pub mod models;
 pub mod quadrature;
+pub mod realized;
 pub mod replication;
+pub mod risk;
 pub mod slice;
 pub mod smile;
 pub mod special;

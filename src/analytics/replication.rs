@@ -9,7 +9,7 @@
 
 use super::black::{otm_price, otm_price_given_exp};
 use super::quadrature::{integrate, QuadratureTolerance};
-use super::smile::SmileCurve;
+use super::smile::SmileShape;
 use super::tolerances::{
     MAX_ABS_LOG_MONEYNESS, OTM_PRICE_CUTOFF, REPLICATION_ABS_TOL, REPLICATION_MAX_EVALUATIONS, REPLICATION_REL_TOL,
 };
@@ -46,7 +46,7 @@ pub struct Replication {
 /// Walks outward from `start` in growing steps until the out-of-the-money price
 /// (and, on the put side, the put in units of the strike) is below the cutoff;
 /// returns the visited points (outward order) and whether the cutoff was reached.
-fn wing_points(curve: &SmileCurve, start: f64, direction: f64, first_step: f64) -> (Vec<f64>, bool) {
+fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, first_step: f64) -> (Vec<f64>, bool) {
     let mut points = Vec::new();
     let mut k = start;
     let mut step = first_step;
@@ -89,7 +89,7 @@ fn subdivide(breaks: &[f64], parts: usize) -> Vec<f64> {
 
 /// Replicates the swap levels of `curve` for an expiry `tau` years away. `quoted`
 /// is the range of quoted log-moneyness; what lies beyond it counts as wing.
-pub fn replicate(curve: &SmileCurve, quoted: (f64, f64), tau: f64) -> Replication {
+pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64) -> Replication {
     let integrand = |k: f64| {
         let discount_to_strike = (-k).exp();
         let price = otm_price_given_exp(k, curve.total_variance(k), discount_to_strike.recip());
@@ -161,6 +161,7 @@ pub fn replicate(curve: &SmileCurve, quoted: (f64, f64), tau: f64) -> Replicatio
 mod tests {
     use super::*;
     use crate::analytics::smile::svi::SviParams;
+    use crate::analytics::smile::SmileCurve;
 
     #[test]
     fn flat_smile_gives_equal_variance_and_gamma_and_zero_leverage() {

@@ -2,8 +2,10 @@
 //! validation into analytics types (every problem named by its field path), and
 //! the output types. Shared by the command line and the service.
 
+pub mod csv_input;
 pub mod input;
 pub mod output;
+pub mod valuation;
 pub mod path;
 
 pub use input::{parse_snapshot, parse_swaps, ValidSnapshot, ValidSwaps};

@@ -9,6 +9,9 @@ pub enum Segment {
     Field(String),
     /// An array element.
     Index(usize),
+    /// A line of a CSV document (1-based, the header is line 1); a following field
+    /// is its column.
+    Line(usize),
 }
 
 /// A path into the input document, shown as `slices[3].points[7].vol` and
@@ -36,13 +39,37 @@ impl FieldPath {
         Self(v)
     }
 
-    /// The JSON pointer (RFC 6901) of this path.
+    /// A cell (or, without a column, a line) of a CSV document.
+    pub fn csv(line: usize, column: Option<&str>) -> Self {
+        let mut v = vec![Segment::Line(line)];
+        if let Some(c) = column {
+            v.push(Segment::Field(c.to_string()));
+        }
+        Self(v)
+    }
+
+    /// This path below `prefix` (a document nested in a larger one).
+    pub fn within(&self, prefix: &FieldPath) -> Self {
+        Self(prefix.0.iter().chain(&self.0).cloned().collect())
+    }
+
+    /// Line and column when this path points into a CSV document.
+    pub fn csv_location(&self) -> Option<(usize, Option<String>)> {
+        match self.0.as_slice() {
+            [Segment::Line(line)] => Some((*line, None)),
+            [Segment::Line(line), Segment::Field(column), ..] => Some((*line, Some(column.clone()))),
+            _ => None,
+        }
+    }
+
+    /// The JSON pointer (RFC 6901) of this path (CSV lines appear as `/line/N`).
     pub fn json_pointer(&self) -> String {
         self.0
             .iter()
             .map(|s| match s {
                 Segment::Field(f) => format!("/{}", f.replace('~', "~0").replace('/', "~1")),
                 Segment::Index(i) => format!("/{i}"),
+                Segment::Line(l) => format!("/line/{l}"),
             })
             .collect()
     }
@@ -56,6 +83,8 @@ impl fmt::Display for FieldPath {
         for (n, s) in self.0.iter().enumerate() {
             match s {
                 Segment::Field(name) if n == 0 => write!(f, "{name}")?,
+                Segment::Field(name) if matches!(self.0[n - 1], Segment::Line(_)) => write!(f, ", column {name}")?,
+                Segment::Line(line) => write!(f, "line {line}")?,
                 Segment::Field(name) => write!(f, ".{name}")?,
                 Segment::Index(i) => write!(f, "[{i}]")?,
             }
@@ -115,6 +144,18 @@ impl InputErrors {
     pub fn from_problems(problems: Vec<Problem>) -> Self {
         Self { kind: InputErrorKind::Invalid, problems }
     }
+
+    /// The same problems, with every path below `prefix`.
+    pub fn within(self, prefix: &FieldPath) -> Self {
+        Self {
+            kind: self.kind,
+            problems: self
+                .problems
+                .into_iter()
+                .map(|p| Problem { path: p.path.within(prefix), message: p.message })
+                .collect(),
+        }
+    }
 }
 
 #[cfg(test)]
@@ -126,5 +167,8 @@ mod tests {
         let p = FieldPath::root().field("slices").index(3).field("points").index(7).field("vol");
         assert_eq!(p.to_string(), "slices[3].points[7].vol");
         assert_eq!(p.json_pointer(), "/slices/3/points/7/vol");
+        assert_eq!(FieldPath::csv(7, Some("vol")).to_string(), "line 7, column vol");
+        assert_eq!(FieldPath::csv(7, Some("vol")).csv_location(), Some((7, Some("vol".to_string()))));
+        assert_eq!(FieldPath::csv(3, None).to_string(), "line 3");
     }
 }
