@@ -342,7 +342,11 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
 
     // Start: best point of a small grid over the free parameters, scored on at most
     // GRID_EXPIRIES expiries spread over the curve (the start only needs to be in
-    // the right basin; the solver then uses every expiry).
+    // the right basin; the solver then uses every expiry). One mean reversion only:
+    // with the bounds handled in the solver, a second value (1.0) changed no outcome on
+    // 48 synthetic curves (H 0.05-0.45, rho_nu -0.2 to -3, mean reversion 0-10; all
+    // recovered to 1e-6) and saved 2% of the iterations (549 against 559), for twice
+    // the grid.
     let picks: Vec<usize> = if n <= GRID_EXPIRIES {
         (0..n).collect()
     } else {
@@ -373,7 +377,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             None => match name {
                 ParamName::Hurst => vec![0.05, 0.15, 0.3, 0.45],
                 ParamName::RhoNu => vec![-0.3, -1.0],
-                ParamName::MeanReversion => vec![0.1, 1.0],
+                ParamName::MeanReversion => vec![0.1],
             },
         }
     };
