@@ -212,18 +212,24 @@ mod tests {
         }
     }
 
-    #[test]
-    fn solves_rosenbrock_from_the_classic_start() {
-        let res = Executor::new(Rosenbrock, LevenbergMarquardt::new(1e-15))
+    /// Runs `solver` on Rosenbrock from the classic start `(-1.2, 1)`; returns the
+    /// best point after checking that the solver reports convergence.
+    fn run_from_classic_start(solver: LevenbergMarquardt) -> DVector<f64> {
+        let res = Executor::new(Rosenbrock, solver)
             .configure(|s| s.param(DVector::from_vec(vec![-1.2, 1.0])).max_iters(200))
             .ctrlc(false)
             .timer(false)
             .run()
             .expect("runs");
-        let p = res.state.get_best_param().expect("param");
+        assert_eq!(res.state.get_termination_reason(), Some(&TerminationReason::SolverConverged));
+        res.state.get_best_param().expect("param").clone()
+    }
+
+    #[test]
+    fn solves_rosenbrock_from_the_classic_start() {
+        let p = run_from_classic_start(LevenbergMarquardt::new(1e-15));
         // Zero-residual problem: converges to rounding.
         assert!((p[0] - 1.0).abs() < 1e-8 && (p[1] - 1.0).abs() < 1e-8, "{p:?}");
-        assert_eq!(res.state.get_termination_reason(), Some(&TerminationReason::SolverConverged));
     }
 
     /// With `x <= 0.5` the minimum lies on the bound: the first residual can be zeroed
@@ -233,14 +239,7 @@ mod tests {
     #[test]
     fn holds_a_parameter_on_its_bound() {
         let solver = LevenbergMarquardt::new(1e-15).with_bounds(vec![-2.0, -2.0], vec![0.5, 2.0]);
-        let res = Executor::new(Rosenbrock, solver)
-            .configure(|s| s.param(DVector::from_vec(vec![-1.2, 1.0])).max_iters(200))
-            .ctrlc(false)
-            .timer(false)
-            .run()
-            .expect("runs");
-        let p = res.state.get_best_param().expect("param");
+        let p = run_from_classic_start(solver);
         assert!(p[0] <= 0.5 && (p[0] - 0.5).abs() < 1e-15 && (p[1] - 0.25).abs() < 1e-8, "{p:?}");
-        assert_eq!(res.state.get_termination_reason(), Some(&TerminationReason::SolverConverged));
     }
 }
