@@ -3,7 +3,7 @@
 //! the calibration uses (MATH.md section 5), so this tests the optimiser, not the
 //! formula; the formula itself is checked against QuantLib in `reference_heston.rs`.
 
-use logstrip::analytics::calibrate::{fit_leverage, FitSpec, FitStatus, LeverageTarget, ModelKind};
+use logstrip::analytics::calibrate::{fit_leverage, FitSpec, FitStatus, LeverageTarget, ModelKind, ParamName};
 use logstrip::analytics::models::leverage::{LeverageCurve, LeverageParams};
 
 /// Parameter accuracy asked by the issue for noise-free curves.
@@ -59,6 +59,16 @@ fn recovers_rough_heston_without_mean_reversion() {
     let truth = LeverageParams { hurst: 0.07, rho_nu: -0.3, mean_reversion: 0.0 };
     let spec = FitSpec { model: Some(ModelKind::RoughHeston), mean_reversion: Some(0.0), ..FitSpec::default() };
     assert_recovers(truth, spec);
+}
+
+/// Mean reversion free but truly zero: the solution lies on the bound, where the
+/// solver must hold it (and report it) instead of stepping out of the box.
+#[test]
+fn recovers_mean_reversion_on_its_bound() {
+    let truth = LeverageParams { hurst: 0.12, rho_nu: -0.4, mean_reversion: 0.0 };
+    assert_recovers(truth, FitSpec { model: Some(ModelKind::RoughHeston), ..FitSpec::default() });
+    let fit = fit_leverage(&synthetic(truth), &FitSpec::default());
+    assert_eq!(fit.active_bounds, vec![ParamName::MeanReversion], "{fit:?}");
 }
 
 #[test]

@@ -2,12 +2,16 @@
 //! structure (MATH.md section 7), and the volatility-swap convexity a fitted model
 //! implies once a vol-of-vol is supplied.
 //!
-//! Bounded parameters are mapped to the real line by a logistic transform
-//! `x = lo + (hi - lo) / (1 + e^-u)` (chain rule in the Jacobian) and fitted by
-//! Levenberg–Marquardt running in argmin's executor ([`super::levenberg`]), started
-//! from the best point of a small grid. If the model cannot be evaluated along the
-//! way, argmin's Nelder–Mead on the same transform takes over. The outcome is data:
-//! status, iterations, evaluations, residual and active bounds.
+//! The free parameters are fitted in their natural units by Levenberg–Marquardt with
+//! the bounds handled directly (an active set, [`super::levenberg`]), running in
+//! argmin's executor and started from the best point of a small grid. MATH.md
+//! section 7 suggests mapping the bounds to the real line; we do not: the demo
+//! snapshot's mean reversion sits on its zero bound, and through a logistic map the
+//! solver spent most of its iterations creeping towards it (8 iterations against 5
+//! here, same cost to 1e-14 relative; `tests/calibration_recovery.rs` checks both
+//! interior and bound solutions). If the model cannot be evaluated along the way,
+//! argmin's Nelder–Mead takes over, on the cost at the point clamped into the box.
+//! The outcome is data: status, iterations, evaluations, residual and active bounds.
 
 use super::levenberg::LevenbergMarquardt;
 use super::models::leverage::{LeverageCurve, LeverageParams, ModelError};
@@ -158,48 +162,47 @@ pub struct FitOutcome {
 /// Expiries used to score the starting grid.
 const GRID_EXPIRIES: usize = 6;
 
-/// Maps free parameters between the unbounded solver space and their bounds.
+/// Which parameters are free and the values of the fixed ones. The solver works on
+/// the free parameters themselves (natural units), within their bounds.
 #[derive(Debug, Clone)]
-struct Transform {
+struct Layout {
     /// Value per parameter: `None` when free.
     fixed: [Option<f64>; 3],
     free: Vec<ParamName>,
 }
 
-fn logistic(u: f64) -> f64 {
-    1.0 / (1.0 + (-u).exp())
-}
-
-impl Transform {
-    fn to_params(&self, u: &[f64]) -> (LeverageParams, Vec<f64>) {
-        let mut x = [0.0; 3];
-        let mut dxdu = Vec::with_capacity(self.free.len());
-        let mut next = 0;
-        for (i, name) in ParamName::ALL.iter().enumerate() {
-            x[i] = match self.fixed[i] {
+impl Layout {
+    /// The full parameter set from the free values `x` (in the order of `free`).
+    fn to_params(&self, x: &[f64]) -> LeverageParams {
+        let mut all = [0.0; 3];
+        let mut next = x.iter();
+        for (i, v) in all.iter_mut().enumerate() {
+            *v = match self.fixed[i] {
                 Some(v) => v,
-                None => {
-                    let (lo, hi) = name.bounds();
-                    let s = logistic(u[next]);
-                    next += 1;
-                    dxdu.push((hi - lo) * s * (1.0 - s));
-                    lo + (hi - lo) * s
-                }
+                None => next.next().copied().unwrap_or(f64::NAN),
             };
         }
-        (LeverageParams { hurst: x[0], rho_nu: x[1], mean_reversion: x[2] }, dxdu)
+        LeverageParams { hurst: all[0], rho_nu: all[1], mean_reversion: all[2] }
     }
 
-    fn to_unbounded(&self, p: &LeverageParams) -> Vec<f64> {
+    /// The free values of `p`.
+    fn to_free(&self, p: &LeverageParams) -> Vec<f64> {
         let x = [p.hurst, p.rho_nu, p.mean_reversion];
-        self.free
-            .iter()
-            .map(|name| {
-                let i = name.index();
+        self.free.iter().map(|name| x[name.index()]).collect()
+    }
+
+    /// Lower and upper bounds of the free parameters.
+    fn bounds(&self) -> (Vec<f64>, Vec<f64>) {
+        self.free.iter().map(|name| name.bounds()).unzip()
+    }
+
+    /// `x` clamped into the bounds.
+    fn project(&self, x: &[f64]) -> Vec<f64> {
+        x.iter()
+            .zip(&self.free)
+            .map(|(v, name)| {
                 let (lo, hi) = name.bounds();
-                let margin = 1e-9 * (hi - lo);
-                let v = x[i].clamp(lo + margin, hi - margin);
-                ((v - lo) / (hi - v)).ln()
+                v.clamp(lo, hi)
             })
             .collect()
     }
@@ -212,16 +215,16 @@ struct LeverageProblem<'a> {
     market_total: &'a [f64],
     /// Residual scale per expiry: `1 / (T_i * sigma_i)`.
     scale: &'a [f64],
-    transform: &'a Transform,
+    layout: &'a Layout,
     evaluations: &'a Cell<u64>,
     /// Residuals only rank start points: the model to about 1e-9 relative is enough.
     for_start: bool,
 }
 
 impl LeverageProblem<'_> {
-    fn residuals(&self, u: &[f64]) -> Result<Vec<f64>, ModelError> {
+    fn residuals(&self, x: &[f64]) -> Result<Vec<f64>, ModelError> {
         self.evaluations.set(self.evaluations.get() + 1);
-        let (p, _) = self.transform.to_params(u);
+        let p = self.layout.to_params(x);
         let model =
             if self.for_start { self.curve.total_leverage_for_start(&p)? } else { self.curve.total_leverage(&p)? };
         Ok(model.iter().zip(self.market_total).zip(self.scale).map(|((m, t), s)| (m - t) * s).collect())
@@ -242,16 +245,13 @@ impl Jacobian for LeverageProblem<'_> {
     type Param = DVector<f64>;
     type Jacobian = DMatrix<f64>;
 
-    fn jacobian(&self, u: &Self::Param) -> Result<Self::Jacobian, ArgminError> {
+    fn jacobian(&self, x: &Self::Param) -> Result<Self::Jacobian, ArgminError> {
         self.evaluations.set(self.evaluations.get() + 1);
-        let (p, dxdu) = self.transform.to_params(u.as_slice());
+        let p = self.layout.to_params(x.as_slice());
         let lg = self.curve.total_leverage_with_gradient(&p).map_err(|e| ArgminError::msg(e.to_string()))?;
         let n = lg.total.len();
-        let free = &self.transform.free;
-        Ok(DMatrix::from_fn(n, free.len(), |i, j| {
-            let which = free[j].index();
-            lg.gradient[i][which] * dxdu[j] * self.scale[i]
-        }))
+        let free = &self.layout.free;
+        Ok(DMatrix::from_fn(n, free.len(), |i, j| lg.gradient[i][free[j].index()] * self.scale[i]))
     }
 }
 
@@ -259,8 +259,10 @@ impl CostFunction for LeverageProblem<'_> {
     type Param = Vec<f64>;
     type Output = f64;
 
-    fn cost(&self, u: &Self::Param) -> Result<f64, ArgminError> {
-        let r = self.residuals(u).map_err(|e| ArgminError::msg(e.to_string()))?;
+    /// The sum of squares at `x` clamped into the bounds (Nelder–Mead has no bounds of
+    /// its own; outside the box it sees the cost of the nearest point inside).
+    fn cost(&self, x: &Self::Param) -> Result<f64, ArgminError> {
+        let r = self.residuals(&self.layout.project(x)).map_err(|e| ArgminError::msg(e.to_string()))?;
         Ok(r.iter().map(|x| x * x).sum())
     }
 }
@@ -285,7 +287,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         .filter(|(n, v)| v.is_some() && !(model == ModelKind::Heston && **n == ParamName::Hurst))
         .map(|(n, _)| *n)
         .collect();
-    let transform = Transform { fixed: fixed_values, free: free.clone() };
+    let layout = Layout { fixed: fixed_values, free: free.clone() };
     let failed = |message: String, params: LeverageParams| FitOutcome {
         model,
         params,
@@ -333,14 +335,18 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         curve: &curve,
         market_total: &market_total,
         scale: &scale,
-        transform: &transform,
+        layout: &layout,
         evaluations: &evaluations,
         for_start: false,
     };
 
     // Start: best point of a small grid over the free parameters, scored on at most
     // GRID_EXPIRIES expiries spread over the curve (the start only needs to be in
-    // the right basin; the solver then uses every expiry).
+    // the right basin; the solver then uses every expiry). One mean reversion only:
+    // with the bounds handled in the solver, a second value (1.0) changed no outcome on
+    // 48 synthetic curves (H 0.05-0.45, rho_nu -0.2 to -3, mean reversion 0-10; all
+    // recovered to 1e-6) and saved 2% of the iterations (549 against 559), for twice
+    // the grid.
     let picks: Vec<usize> = if n <= GRID_EXPIRIES {
         (0..n).collect()
     } else {
@@ -359,7 +365,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             curve: c,
             market_total: &sub_market,
             scale: &sub_scale,
-            transform: &transform,
+            layout: &layout,
             evaluations: &sub_evaluations,
             for_start: true,
         },
@@ -371,7 +377,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             None => match name {
                 ParamName::Hurst => vec![0.05, 0.15, 0.3, 0.45],
                 ParamName::RhoNu => vec![-0.3, -1.0],
-                ParamName::MeanReversion => vec![0.1, 1.0],
+                ParamName::MeanReversion => vec![0.1],
             },
         }
     };
@@ -380,7 +386,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         for c in grid(ParamName::RhoNu, fixed_values[1]) {
             for l in grid(ParamName::MeanReversion, fixed_values[2]) {
                 let p = LeverageParams { hurst: h, rho_nu: c, mean_reversion: l };
-                if let Ok(r) = grid_problem.residuals(&transform.to_unbounded(&p)) {
+                if let Ok(r) = grid_problem.residuals(&layout.to_free(&p)) {
                     let cost: f64 = r.iter().map(|x| x * x).sum();
                     if cost.is_finite() && best.as_ref().is_none_or(|b| cost < b.0) {
                         best = Some((cost, p));
@@ -392,17 +398,17 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let Some((_, start)) = best else {
         return failed("the model could not be evaluated at any starting point".into(), nan_params);
     };
-    let u0 = transform.to_unbounded(&start);
+    let x0 = layout.to_free(&start);
 
     let mut message = None;
     let mut iterations = 0;
     let mut status = FitStatus::Converged;
-    let mut u_best = u0.clone();
+    let mut x_best = x0.clone();
     if !free.is_empty() {
-        let gn = run_levenberg_marquardt(&problem, &u0);
+        let gn = run_levenberg_marquardt(&problem, &x0);
         match gn {
-            Ok((u, iters, reason)) => {
-                u_best = u;
+            Ok((x, iters, reason)) => {
+                x_best = x;
                 iterations = iters;
                 if reason != Some(TerminationReason::SolverConverged) {
                     status = FitStatus::MaxIterations;
@@ -411,10 +417,10 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
                 }
             }
             Err(e) => {
-                let nm = run_nelder_mead(&problem, &u0);
+                let nm = run_nelder_mead(&problem, &x0);
                 match nm {
-                    Ok((u, iters, reason)) => {
-                        u_best = u;
+                    Ok((x, iters, reason)) => {
+                        x_best = layout.project(&x);
                         iterations = iters;
                         let how = if reason == Some(TerminationReason::SolverConverged) {
                             "converged"
@@ -432,7 +438,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             }
         }
     }
-    let (params, _) = transform.to_params(&u_best);
+    let params = layout.to_params(&x_best);
     let model_total = match curve.total_leverage(&params) {
         Ok(m) => m,
         Err(e) => return failed(e.to_string(), params),
@@ -477,32 +483,36 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
 
 type SolverRun = Result<(Vec<f64>, u64, Option<TerminationReason>), ArgminError>;
 
-fn run_levenberg_marquardt(problem: &LeverageProblem<'_>, u0: &[f64]) -> SolverRun {
-    let solver = LevenbergMarquardt::new(CALIBRATION_COST_REL_TOL);
+fn run_levenberg_marquardt(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolverRun {
+    let (lower, upper) = problem.layout.bounds();
+    let solver = LevenbergMarquardt::new(CALIBRATION_COST_REL_TOL).with_bounds(lower, upper);
     let res = Executor::new(*problem, solver)
-        .configure(|s| s.param(DVector::from_vec(u0.to_vec())).max_iters(CALIBRATION_MAX_ITERATIONS))
+        .configure(|s| s.param(DVector::from_vec(x0.to_vec())).max_iters(CALIBRATION_MAX_ITERATIONS))
         .ctrlc(false)
         .timer(false)
         .run()?;
     let iters = res.state.get_iter();
     let reason = res.state.get_termination_reason().cloned();
-    let u = res.state.get_best_param().map(|p| p.as_slice().to_vec()).unwrap_or_else(|| u0.to_vec());
-    Ok((u, iters, reason))
+    let x = res.state.get_best_param().map(|p| p.as_slice().to_vec()).unwrap_or_else(|| x0.to_vec());
+    Ok((x, iters, reason))
 }
 
-fn run_nelder_mead(problem: &LeverageProblem<'_>, u0: &[f64]) -> SolverRun {
-    let mut simplex = vec![u0.to_vec()];
-    for i in 0..u0.len() {
-        let mut v = u0.to_vec();
-        v[i] += 0.5;
+fn run_nelder_mead(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolverRun {
+    // Start simplex: a tenth of each range away from the start, towards the interior.
+    let mut simplex = vec![x0.to_vec()];
+    for (i, name) in problem.layout.free.iter().enumerate() {
+        let (lo, hi) = name.bounds();
+        let step = 0.1 * (hi - lo);
+        let mut v = x0.to_vec();
+        v[i] += if v[i] + step <= hi { step } else { -step };
         simplex.push(v);
     }
     let solver = NelderMead::new(simplex).with_sd_tolerance(1e-20)?;
     let res = Executor::new(*problem, solver).configure(|s| s.max_iters(2000)).ctrlc(false).timer(false).run()?;
     let iters = res.state.get_iter();
     let reason = res.state.get_termination_reason().cloned();
-    let u = res.state.get_best_param().cloned().unwrap_or_else(|| u0.to_vec());
-    Ok((u, iters, reason))
+    let x = res.state.get_best_param().cloned().unwrap_or_else(|| x0.to_vec());
+    Ok((x, iters, reason))
 }
 
 /// Piecewise-constant forward variance from variance swap levels (MATH.md

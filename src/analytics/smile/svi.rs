@@ -97,6 +97,7 @@ impl Default for SlopePrior {
 
 /// Solves `A t = r` for a symmetric `n x n` system (n <= 3) by Gaussian elimination
 /// with partial pivoting; `None` when (numerically) singular.
+#[inline]
 pub(crate) fn solve_small(n: usize, mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Option<[f64; 3]> {
     let scale = (0..n).map(|i| a[i][i].abs()).fold(0.0, f64::max);
     if !(scale > 0.0) || !scale.is_finite() {
