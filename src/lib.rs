@@ -10,5 +10,6 @@
 pub mod analytics;
 pub mod api;
 pub mod cli;
+pub mod ingest;
 pub mod store;
 pub mod wire;

@@ -18,9 +18,37 @@ struct Args {
 enum Command {
     /// Analyse a snapshot of smiles: swap term structures, quality flags, model fit.
     Analyze {
-        /// Snapshot JSON file (`-` for standard input).
+        /// Snapshot file, JSON or CSV (`-` for standard input).
         #[arg(long, short)]
         input: PathBuf,
+        #[command(flatten)]
+        snapshot: cli::SnapshotFlags,
+        /// Indent the JSON output.
+        #[arg(long)]
+        pretty: bool,
+    },
+    /// Value a book of variance, gamma and leverage swaps against a snapshot.
+    Value {
+        /// Book file (`{"positions": [...]}`).
+        #[arg(long)]
+        book: PathBuf,
+        /// Snapshot file, JSON or CSV.
+        #[arg(long)]
+        snapshot: PathBuf,
+        #[command(flatten)]
+        snapshot_flags: cli::SnapshotFlags,
+        /// Indent the JSON output.
+        #[arg(long)]
+        pretty: bool,
+    },
+    /// Realized variance from daily closes (CSV with a `close` column, or JSON).
+    Realized {
+        /// Closes file.
+        #[arg(long)]
+        closes: PathBuf,
+        /// Returns per year (default 252).
+        #[arg(long)]
+        annualization: Option<f64>,
         /// Indent the JSON output.
         #[arg(long)]
         pretty: bool,
@@ -34,6 +62,8 @@ enum Command {
         #[arg(long)]
         pretty: bool,
     },
+    /// Load every snapshot file under a directory into the store or a running service.
+    Backfill(cli::backfill::BackfillArgs),
     /// Serve the HTTP API, keeping every analysis in the history store.
     Serve(cli::serve::ServeArgs),
     /// Print the service's OpenAPI document.
@@ -53,7 +83,13 @@ fn main() -> ExitCode {
     let args = Args::parse();
     let mut stdout = std::io::stdout().lock();
     let result: Result<(), CliError> = match args.command {
-        Command::Analyze { input, pretty } => cli::run_analyze(&input, pretty, &mut stdout),
+        Command::Analyze { input, snapshot, pretty } => cli::run_analyze(&input, &snapshot, pretty, &mut stdout),
+        Command::Value { book, snapshot, snapshot_flags, pretty } => {
+            cli::run_value(&book, &snapshot, &snapshot_flags, pretty, &mut stdout)
+        }
+        Command::Realized { closes, annualization, pretty } => {
+            cli::run_realized(&closes, annualization, pretty, &mut stdout)
+        }
         Command::Fit { input, pretty } => cli::run_fit(&input, pretty, &mut stdout),
         Command::Bench { input, runs } => cli::bench::run_bench(&input, runs, &mut stdout),
         Command::Serve(args) => {
@@ -61,6 +97,7 @@ fn main() -> ExitCode {
             cli::serve::run_serve(&args)
         }
         Command::Openapi => cli::run_openapi(&mut stdout),
+        Command::Backfill(args) => cli::backfill::run_backfill(&args, &mut stdout),
     };
     match result {
         Ok(()) => ExitCode::from(Status::Ok as u8),

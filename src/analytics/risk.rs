@@ -165,7 +165,8 @@ fn discount_at(expiries: &[f64], discounts: &[f64], tau: f64) -> f64 {
 /// or a forward-starting gamma or leverage swap.
 pub fn value_swap(position: &SwapPosition, market: &SwapMarket) -> Result<SwapValue, RiskError> {
     let p = position;
-    for (name, x) in [("strike", p.strike), ("notional", p.variance_notional), ("start", p.start), ("maturity", p.maturity)]
+    for (name, x) in
+        [("strike", p.strike), ("notional", p.variance_notional), ("start", p.start), ("maturity", p.maturity)]
     {
         if !x.is_finite() {
             return Err(RiskError::NotFinite(name));
@@ -192,11 +193,7 @@ pub fn value_swap(position: &SwapPosition, market: &SwapMarket) -> Result<SwapVa
         (true, Some(r)) => r,
         (true, None) => return Err(RiskError::NeedsRealized),
     };
-    let realized_gamma = if gamma_like {
-        realized.gamma_variance.ok_or(RiskError::NeedsGammaVariance)?
-    } else {
-        0.0
-    };
+    let realized_gamma = if gamma_like { realized.gamma_variance.ok_or(RiskError::NeedsGammaVariance)? } else { 0.0 };
     let expired = p.maturity <= 0.0;
     let discount = discount_at(&market.expiries, &market.discount, p.maturity);
     // Levels of the remaining period and the gamma leg's spot ratio.
@@ -218,9 +215,11 @@ pub fn value_swap(position: &SwapPosition, market: &SwapMarket) -> Result<SwapVa
     let (accrued, remaining, implied_level) = match p.kind {
         SwapKind::Variance => (realized.variance, variance_level, variance_level),
         SwapKind::Gamma => (realized_gamma, spot_ratio * gamma_level, gamma_level),
-        SwapKind::Leverage => {
-            (realized_gamma - realized.variance, spot_ratio * gamma_level - variance_level, gamma_level - variance_level)
-        }
+        SwapKind::Leverage => (
+            realized_gamma - realized.variance,
+            spot_ratio * gamma_level - variance_level,
+            gamma_level - variance_level,
+        ),
     };
     let scale = p.side.sign() * p.variance_notional * discount;
     let accrued_leg = scale * past_weight * accrued;

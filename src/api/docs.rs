@@ -8,7 +8,7 @@ use super::error::{FieldProblem, ProblemDetails};
 use super::handlers::rfc3339;
 use super::history::{HistoryFit, HistoryItem, HistoryPage, HistoryPoint};
 use crate::store::UnderlyingSummary;
-use crate::wire::{input, output};
+use crate::wire::{input, output, valuation};
 use serde::Serialize;
 use serde_json::{json, Value};
 use utoipa::openapi::security::{HttpAuthScheme, HttpBuilder, SecurityScheme};
@@ -98,6 +98,20 @@ pub fn snapshot_example() -> Value {
     })
 }
 
+/// The same kind of snapshot as CSV (two expiries of the invented index KESTREL50).
+pub const CSV_SNAPSHOT_EXAMPLE: &str = "underlying,as_of,expiry,strike,vol,forward,discount
+KESTREL50,2026-11-30T15:30:00Z,2026-12-18T21:00:00Z,3600,0.32,4215.2,0.995
+KESTREL50,2026-11-30T15:30:00Z,2026-12-18T21:00:00Z,3900,0.26,4215.2,0.995
+KESTREL50,2026-11-30T15:30:00Z,2026-12-18T21:00:00Z,4200,0.205,4215.2,0.995
+KESTREL50,2026-11-30T15:30:00Z,2026-12-18T21:00:00Z,4500,0.17,4215.2,0.995
+KESTREL50,2026-11-30T15:30:00Z,2026-12-18T21:00:00Z,4800,0.165,4215.2,0.995
+KESTREL50,2026-11-30T15:30:00Z,2027-06-18T21:00:00Z,3600,0.275,4262,0.99
+KESTREL50,2026-11-30T15:30:00Z,2027-06-18T21:00:00Z,3900,0.245,4262,0.99
+KESTREL50,2026-11-30T15:30:00Z,2027-06-18T21:00:00Z,4200,0.215,4262,0.99
+KESTREL50,2026-11-30T15:30:00Z,2027-06-18T21:00:00Z,4500,0.192,4262,0.99
+KESTREL50,2026-11-30T15:30:00Z,2027-06-18T21:00:00Z,4800,0.178,4262,0.99
+";
+
 /// Swap levels of the invented index KESTREL50.
 pub fn swaps_example() -> Value {
     json!({
@@ -138,6 +152,8 @@ impl Modify for BearerSecurity {
         super::handlers::post_snapshot,
         super::handlers::post_analyze,
         super::handlers::post_fit,
+        super::risk::post_valuation,
+        super::risk::post_realized,
         super::handlers::get_snapshot,
         super::handlers::get_underlyings,
         super::handlers::get_latest,
@@ -152,6 +168,9 @@ impl Modify for BearerSecurity {
         input::SwapsDoc, input::SwapDoc, input::SmileMethodDoc, input::ModelDoc,
         output::AnalysisDoc, output::CurveDoc, output::QualityDoc, output::SmileDoc, output::FitDoc,
         output::ParamsDoc, output::ConvexityDoc,
+        super::risk::ValuationRequest, valuation::PositionDoc, valuation::RealizedDoc, valuation::KindDoc,
+        valuation::SideDoc, valuation::ClosesDoc, valuation::RealizedOutDoc, valuation::ValuationDoc,
+        valuation::PositionValueDoc, valuation::VegaBucketDoc, valuation::TotalsDoc, valuation::TotalDoc,
         StoredAnalysisDoc, UnderlyingsDoc, UnderlyingDoc, StatusDoc,
         HistoryPage, HistoryItem, HistoryFit, HistoryPoint,
         ProblemDetails, FieldProblem
@@ -160,6 +179,7 @@ impl Modify for BearerSecurity {
     tags(
         (name = "snapshots", description = "Analyse and store smile snapshots"),
         (name = "fits", description = "Fit the model to swap levels"),
+        (name = "risk", description = "Value swap books; realized variance"),
         (name = "underlyings", description = "Latest analyses and history"),
         (name = "operations", description = "Probes, metrics and this document")
     )

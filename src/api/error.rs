@@ -96,6 +96,12 @@ pub struct FieldProblem {
     /// Name of the query parameter.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub parameter: Option<String>,
+    /// Line of a CSV body (the header is line 1).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub line: Option<usize>,
+    /// Column of a CSV body.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub column: Option<String>,
     /// What is wrong with it.
     #[schema(example = "must be positive, got -0.2")]
     pub detail: String,
@@ -165,16 +171,27 @@ impl ApiError {
                 ),
                 e.problems
                     .iter()
-                    .map(|p| FieldProblem {
-                        pointer: Some(p.path.json_pointer()),
-                        parameter: None,
-                        detail: format!("{}: {}", p.path, p.message),
+                    .map(|p| {
+                        let csv = p.path.csv_location();
+                        FieldProblem {
+                            pointer: csv.is_none().then(|| p.path.json_pointer()),
+                            parameter: None,
+                            line: csv.as_ref().map(|c| c.0),
+                            column: csv.and_then(|c| c.1),
+                            detail: format!("{}: {}", p.path, p.message),
+                        }
                     })
                     .collect(),
             ),
             Self::Parameter { name, message } => (
                 self.to_string(),
-                vec![FieldProblem { pointer: None, parameter: Some(name.to_string()), detail: message.clone() }],
+                vec![FieldProblem {
+                    pointer: None,
+                    parameter: Some(name.to_string()),
+                    line: None,
+                    column: None,
+                    detail: message.clone(),
+                }],
             ),
             Self::StoreUnavailable(_) => {
                 (format!("the history store is unavailable; retry in {RETRY_AFTER_SECONDS} s"), Vec::new())

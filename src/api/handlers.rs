@@ -1,12 +1,13 @@
 //! Handlers of the snapshot, fit, underlying and operational endpoints (history is in
 //! [`super::history`]).
 
-use super::body::JsonText;
+use super::body::{JsonText, SnapshotText};
 use super::docs::{self, StoredAnalysisDoc, UnderlyingsDoc};
 use super::error::{ApiError, ProblemDetails};
 use super::{AppState, MAX_WAIT_SECONDS, WAIT_RECHECK};
 use crate::analytics::calibrate::fit_leverage;
-use crate::store::{self, NewSnapshot, Store, StoredSnapshot, JSON_MEDIA_TYPE};
+use crate::ingest::{self, Digest, IngestError, Prepared};
+use crate::store::{self, Store, StoredSnapshot, JSON_MEDIA_TYPE};
 use crate::wire::{self, output};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, Request, State};
@@ -33,60 +34,27 @@ pub fn query_params<T>(parsed: Result<Query<T>, QueryRejection>) -> Result<T, Ap
     parsed.map(|Query(q)| q).map_err(|e| ApiError::Parameter { name: "query", message: e.body_text() })
 }
 
-/// An analysed snapshot, ready to store.
-struct Analysed {
-    record: NewSnapshot,
-    fit_elapsed_us: Option<u64>,
-}
-
-/// Whether [`analyse`] also digests the input for idempotent storage.
-#[derive(Clone, Copy, PartialEq, Eq)]
-enum Digest {
-    /// `POST /v1/snapshots`: the canonical form's SHA-256 identifies the content.
-    ForStorage,
-    /// `POST /v1/analyze`: nothing is stored.
-    Skip,
-}
-
-/// Parses, validates and analyses a snapshot on the blocking pool.
-async fn analyse(state: &AppState, text: String, digest: Digest) -> Result<Analysed, ApiError> {
-    let outcome = tokio::task::spawn_blocking(move || -> Result<Analysed, ApiError> {
-        let (snapshot, analysis) = wire::analyze_text(&text)?;
-        let doc = output::analysis_doc(&snapshot, &analysis);
-        let content_sha256 = match digest {
-            Digest::ForStorage => {
-                let canonical: Value = serde_json::from_str(&text).map_err(|e| ApiError::Internal(e.to_string()))?;
-                store::canonical_json_sha256(&canonical)
-            }
-            Digest::Skip => String::new(),
-        };
-        let analysis_json = serde_json::to_string(&doc).map_err(|e| ApiError::Internal(e.to_string()))?;
-        Ok(Analysed {
-            fit_elapsed_us: doc.fit.as_ref().map(|f| f.elapsed_us),
-            record: NewSnapshot::new(
-                snapshot.underlying,
-                snapshot.as_of,
-                content_sha256,
-                JSON_MEDIA_TYPE,
-                text,
-                analysis_json,
-            ),
-        })
-    })
-    .await
-    .map_err(|e| ApiError::Internal(format!("analysis task failed: {e}")))?;
+/// Parses, validates and analyses a snapshot on the blocking pool, counting the
+/// outcome.
+async fn analyse(state: &AppState, body: SnapshotText, digest: Digest) -> Result<Prepared, ApiError> {
+    let outcome = tokio::task::spawn_blocking(move || ingest::prepare(body.text, &body.format, digest))
+        .await
+        .map_err(|e| ApiError::Internal(format!("analysis task failed: {e}")))?;
     let metrics = state.metrics();
-    match &outcome {
-        Ok(a) => {
+    match outcome {
+        Ok(prepared) => {
             metrics.analysis("ok");
-            if let Some(us) = a.fit_elapsed_us {
+            if let Some(us) = prepared.fit_elapsed_us {
                 metrics.fit_duration_us(us);
             }
+            Ok(prepared)
         }
-        Err(ApiError::Input(_)) => metrics.analysis("invalid_input"),
-        Err(_) => {}
+        Err(IngestError::Input(e)) => {
+            metrics.analysis("invalid_input");
+            Err(ApiError::Input(e))
+        }
+        Err(IngestError::Internal(m)) => Err(ApiError::Internal(m)),
     }
-    outcome
 }
 
 /// A response with a JSON text body.
@@ -163,8 +131,10 @@ fn store_failed(state: &AppState, operation: &str, e: store::StoreError) -> ApiE
 /// Analyse a snapshot and store it.
 #[utoipa::path(
     post, path = "/v1/snapshots", tag = "snapshots",
-    request_body(content = crate::wire::input::SnapshotDoc, content_type = "application/json",
-                 example = json!(docs::snapshot_example())),
+    request_body(description = "A snapshot as JSON, or as CSV (one row per quote)",
+                 content((crate::wire::input::SnapshotDoc = "application/json", example = json!(docs::snapshot_example())),
+                         (String = "text/csv", example = json!(docs::CSV_SNAPSHOT_EXAMPLE)))),
+    params(CsvParams),
     responses(
         (status = 201, description = "Stored; `Location` names the new resource", body = StoredAnalysisDoc,
          headers(("Location" = String, description = "Path of the stored snapshot"))),
@@ -174,15 +144,15 @@ fn store_failed(state: &AppState, operation: &str, e: store::StoreError) -> ApiE
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 403, description = "Read-only token", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 413, description = "Body over the limit", body = ProblemDetails, content_type = "application/problem+json"),
-        (status = 415, description = "Not `application/json`", body = ProblemDetails, content_type = "application/problem+json"),
-        (status = 422, description = "Invalid values, each with its JSON pointer", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 415, description = "Not `application/json` or `text/csv`", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "Invalid values, each with its JSON pointer (CSV: line and column)", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
          headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
     ),
     security((), ("bearer" = []))
 )]
-pub async fn post_snapshot(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
-    let analysed = analyse(&state, text, Digest::ForStorage).await?;
+pub async fn post_snapshot(State(state): State<AppState>, body: SnapshotText) -> Result<Response, ApiError> {
+    let analysed = analyse(&state, body, Digest::ForStorage).await?;
     let analysis_json = analysed.record.analysis.clone();
     let inserted = state.store().insert(analysed.record).await.map_err(|e| store_failed(&state, "insert", e))?;
     let location = HeaderValue::from_str(&format!("/v1/snapshots/{}", inserted.id))
@@ -202,24 +172,36 @@ pub async fn post_snapshot(State(state): State<AppState>, JsonText(text): JsonTe
     }
 }
 
+/// Query of the snapshot endpoints, for CSV bodies.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct CsvParams {
+    /// Underlying of a CSV body without an `underlying` column.
+    pub underlying: Option<String>,
+    /// Valuation time (RFC 3339) of a CSV body without an `as_of` column.
+    pub as_of: Option<String>,
+}
+
 /// Analyse a snapshot without storing it.
 #[utoipa::path(
     post, path = "/v1/analyze", tag = "snapshots",
-    request_body(content = crate::wire::input::SnapshotDoc, content_type = "application/json",
-                 example = json!(docs::snapshot_example())),
+    request_body(description = "A snapshot as JSON, or as CSV (one row per quote)",
+                 content((crate::wire::input::SnapshotDoc = "application/json", example = json!(docs::snapshot_example())),
+                         (String = "text/csv", example = json!(docs::CSV_SNAPSHOT_EXAMPLE)))),
+    params(CsvParams),
     responses(
         (status = 200, description = "The analysis", body = crate::wire::output::AnalysisDoc),
         (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 403, description = "Read-only token", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 413, description = "Body over the limit", body = ProblemDetails, content_type = "application/problem+json"),
-        (status = 415, description = "Not `application/json`", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 415, description = "Not `application/json` or `text/csv`", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 422, description = "Invalid values, each with its JSON pointer", body = ProblemDetails, content_type = "application/problem+json"),
     ),
     security((), ("bearer" = []))
 )]
-pub async fn post_analyze(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
-    let analysed = analyse(&state, text, Digest::Skip).await?;
+pub async fn post_analyze(State(state): State<AppState>, body: SnapshotText) -> Result<Response, ApiError> {
+    let analysed = analyse(&state, body, Digest::Skip).await?;
     Ok(json_text(StatusCode::OK, &[], analysed.record.analysis))
 }
 

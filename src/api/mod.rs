@@ -13,6 +13,7 @@ pub mod error;
 pub mod handlers;
 pub mod history;
 pub mod metrics;
+pub mod risk;
 
 use crate::store::AnyStore;
 use auth::Access;
@@ -88,6 +89,8 @@ pub fn router(state: AppState) -> Router {
         .route("/v1/snapshots/{id}", get(handlers::get_snapshot))
         .route("/v1/analyze", post(handlers::post_analyze))
         .route("/v1/fits", post(handlers::post_fit))
+        .route("/v1/valuations", post(risk::post_valuation))
+        .route("/v1/realized", post(risk::post_realized))
         .route("/v1/underlyings", get(handlers::get_underlyings))
         .route("/v1/underlyings/{underlying}/latest", get(handlers::get_latest))
         .route("/v1/underlyings/{underlying}/history", get(history::get_history))

@@ -1,11 +1,15 @@
 //! The subcommands behind `main.rs`: each reads its input, calls the analytics and
 //! writes JSON. They return a [`Status`] (the process exit code) so tests can call them.
 
+pub mod backfill;
 pub mod bench;
 pub mod serve;
 
+use crate::analytics::analysis::Analysis;
 use crate::analytics::calibrate::fit_leverage;
-use crate::wire::{self, analyze_text, output, InputErrors};
+use crate::wire::csv_input::{self, CsvHeader};
+use crate::wire::valuation::{self, BookDoc, ClosesDoc};
+use crate::wire::{self, output, InputErrors, SnapshotFormat};
 use std::io::{Read, Write};
 use std::path::Path;
 
@@ -40,13 +44,16 @@ pub enum CliError {
     /// The service could not start or failed.
     #[error("{0}")]
     Serve(String),
+    /// A batch finished with failures (listed as it ended).
+    #[error("{0}")]
+    Incomplete(String),
 }
 
 impl CliError {
     /// The exit status for this error.
     pub fn status(&self) -> Status {
         match self {
-            Self::Io { .. } | Self::Serve(_) => Status::Io,
+            Self::Io { .. } | Self::Serve(_) | Self::Incomplete(_) => Status::Io,
             Self::Input(_) | Self::Config(_) => Status::BadInput,
         }
     }
@@ -71,14 +78,98 @@ fn write_json<T: serde::Serialize>(value: &T, pretty: bool, out: &mut dyn Write)
     writeln!(out, "{text}").map_err(io)
 }
 
+/// How a snapshot file is written.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum InputFormat {
+    /// A JSON document.
+    Json,
+    /// CSV, one row per quote.
+    Csv,
+}
+
+/// Flags that say how to read a snapshot file.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct SnapshotFlags {
+    /// `json` or `csv`; by default from the file name (`.csv` is CSV), else JSON.
+    #[arg(long, value_enum)]
+    pub format: Option<InputFormat>,
+    /// Underlying of a CSV file without an `underlying` column.
+    #[arg(long)]
+    pub underlying: Option<String>,
+    /// Valuation time (RFC 3339) of a CSV file without an `as_of` column.
+    #[arg(long)]
+    pub as_of: Option<String>,
+}
+
+impl SnapshotFlags {
+    /// The format of `path` under these flags.
+    pub fn format_of(&self, path: &Path) -> SnapshotFormat {
+        let csv = match self.format {
+            Some(f) => f == InputFormat::Csv,
+            None => path.extension().is_some_and(|e| e.eq_ignore_ascii_case("csv")),
+        };
+        if csv {
+            SnapshotFormat::Csv(CsvHeader { underlying: self.underlying.clone(), as_of: self.as_of.clone() })
+        } else {
+            SnapshotFormat::Json
+        }
+    }
+}
+
+fn analyze_file(input: &Path, flags: &SnapshotFlags) -> Result<(wire::ValidSnapshot, Analysis), CliError> {
+    let text = read_input(input)?;
+    let parsed = wire::parse_snapshot_as(&text, &flags.format_of(input))?;
+    Ok(wire::analyze_valid(parsed)?)
+}
+
 /// `logstrip analyze`: smiles in, swap term structures and the fit out.
 ///
 /// # Errors
 /// [`CliError`] for unreadable or invalid input.
-pub fn run_analyze(input: &Path, pretty: bool, out: &mut dyn Write) -> Result<(), CliError> {
-    let text = read_input(input)?;
-    let (snapshot, analysis) = analyze_text(&text)?;
+pub fn run_analyze(input: &Path, flags: &SnapshotFlags, pretty: bool, out: &mut dyn Write) -> Result<(), CliError> {
+    let (snapshot, analysis) = analyze_file(input, flags)?;
     write_json(&output::analysis_doc(&snapshot, &analysis), pretty, out)
+}
+
+/// `logstrip value`: a book of swaps valued against a snapshot, with vega by expiry.
+///
+/// # Errors
+/// [`CliError`] for unreadable or invalid input (a maturity beyond the last expiry
+/// included).
+pub fn run_value(
+    book: &Path,
+    snapshot: &Path,
+    flags: &SnapshotFlags,
+    pretty: bool,
+    out: &mut dyn Write,
+) -> Result<(), CliError> {
+    let book_doc: BookDoc = wire::input::parse_json(&read_input(book)?)?;
+    let (snapshot, analysis) = analyze_file(snapshot, flags)?;
+    write_json(&valuation::value_book(&snapshot, &analysis, &book_doc)?, pretty, out)
+}
+
+/// `logstrip realized`: realized and gamma-weighted realized variance from closes in a
+/// CSV (`close` column, optional `date`) or JSON (`{"closes": [..]}`) file.
+///
+/// # Errors
+/// [`CliError`] for unreadable input, gaps and non-positive closes (naming the row).
+pub fn run_realized(
+    closes: &Path,
+    annualization: Option<f64>,
+    pretty: bool,
+    out: &mut dyn Write,
+) -> Result<(), CliError> {
+    let text = read_input(closes)?;
+    let values: Vec<Option<f64>> = if closes.extension().is_some_and(|e| e.eq_ignore_ascii_case("csv")) {
+        csv_input::parse_closes_csv(&text)?.values.into_iter().map(Some).collect()
+    } else {
+        let doc: ClosesDoc = wire::input::parse_json(&text)?;
+        if annualization.is_none() {
+            return write_json(&valuation::realized_doc(&doc.closes, doc.annualization)?, pretty, out);
+        }
+        doc.closes
+    };
+    write_json(&valuation::realized_doc(&values, annualization)?, pretty, out)
 }
 
 /// `logstrip fit`: swap levels in, the fit out.

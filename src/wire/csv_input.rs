@@ -76,7 +76,10 @@ fn number(row: &[String], column: Option<usize>, line: usize, name: &str, proble
     match text.parse::<f64>() {
         Ok(x) => Some(x),
         Err(_) => {
-            problems.push(Problem { path: FieldPath::csv(line, Some(name)), message: format!("must be a number, got {text:?}") });
+            problems.push(Problem {
+                path: FieldPath::csv(line, Some(name)),
+                message: format!("must be a number, got {text:?}"),
+            });
             None
         }
     }
@@ -154,10 +157,14 @@ fn snapshot_doc(text: &str, header: &CsvHeader) -> Result<(SnapshotDoc, Origins)
     }
     let by_vol = col("vol").is_some();
     if !by_vol && col("call").is_none() && col("put").is_none() {
-        problems.push(Problem { path: FieldPath::csv(1, None), message: "needs a vol column, or call and put columns".into() });
+        problems.push(Problem {
+            path: FieldPath::csv(1, None),
+            message: "needs a vol column, or call and put columns".into(),
+        });
     }
     if by_vol && (col("call").is_some() || col("put").is_some()) {
-        problems.push(Problem { path: FieldPath::csv(1, None), message: "give vol or call/put columns, not both".into() });
+        problems
+            .push(Problem { path: FieldPath::csv(1, None), message: "give vol or call/put columns, not both".into() });
     }
     if table.rows.is_empty() {
         problems.push(Problem { path: FieldPath::csv(2, None), message: "no quotes".into() });
@@ -189,11 +196,15 @@ fn snapshot_doc(text: &str, header: &CsvHeader) -> Result<(SnapshotDoc, Origins)
             (Some(e), None) => format!("expiry:{e}"),
             (None, Some(t)) => format!("tau:{t}"),
             (Some(_), Some(_)) => {
-                problems.push(Problem { path: FieldPath::csv(line, Some("tau")), message: "give expiry or tau, not both".into() });
+                problems.push(Problem {
+                    path: FieldPath::csv(line, Some("tau")),
+                    message: "give expiry or tau, not both".into(),
+                });
                 continue;
             }
             (None, None) => {
-                problems.push(Problem { path: FieldPath::csv(line, Some("expiry")), message: "give expiry or tau".into() });
+                problems
+                    .push(Problem { path: FieldPath::csv(line, Some("expiry")), message: "give expiry or tau".into() });
                 continue;
             }
         };
@@ -284,7 +295,11 @@ pub fn parse_snapshot_csv(text: &str, header: &CsvHeader) -> Result<ValidSnapsho
     let (doc, origins) = snapshot_doc(text, header)?;
     validate_snapshot(&doc).map_err(|e| InputErrors {
         kind: e.kind,
-        problems: e.problems.into_iter().map(|p| Problem { path: origins.locate(&p.path), message: p.message }).collect(),
+        problems: e
+            .problems
+            .into_iter()
+            .map(|p| Problem { path: origins.locate(&p.path), message: p.message })
+            .collect(),
     })
 }
 
@@ -317,8 +332,10 @@ pub fn parse_closes_csv(text: &str) -> Result<Closes, InputErrors> {
                 message: "missing close (a gap in the series)".into(),
             }),
             None => {}
-            Some(c) if !(c.is_finite() && c > 0.0) => problems
-                .push(Problem { path: FieldPath::csv(*line, Some("close")), message: format!("must be positive, got {c}") }),
+            Some(c) if !(c.is_finite() && c > 0.0) => problems.push(Problem {
+                path: FieldPath::csv(*line, Some("close")),
+                message: format!("must be positive, got {c}"),
+            }),
             Some(c) => values.push(c),
         }
         if let Some(date) = text_cell(row, date_col) {
@@ -335,7 +352,10 @@ pub fn parse_closes_csv(text: &str) -> Result<Closes, InputErrors> {
         return Err(InputErrors::from_problems(problems));
     }
     if values.len() < 2 {
-        return Err(InputErrors::one(FieldPath::csv(2, Some("close")), format!("needs at least 2 closes, got {}", values.len())));
+        return Err(InputErrors::one(
+            FieldPath::csv(2, Some("close")),
+            format!("needs at least 2 closes, got {}", values.len()),
+        ));
     }
     Ok(Closes { values })
 }
@@ -386,10 +406,29 @@ KESTREL50,2026-11-30T15:30:00Z,2027-06-18T21:00:00Z,4600,0.19,,,4262,
     fn closes_with_gaps_and_bad_prices_name_the_line() {
         let ok = parse_closes_csv("date,close\n2026-11-02,100\n2026-11-03,101.5\n").expect("valid");
         assert_eq!(ok.values, vec![100.0, 101.5]);
-        let err = parse_closes_csv("date,close\n2026-11-02,100\n2026-11-03,\n2026-11-04,-1\n2026-11-04,3\n").expect_err("bad");
+        let err = parse_closes_csv("date,close\n2026-11-02,100\n2026-11-03,\n2026-11-04,-1\n2026-11-04,3\n")
+            .expect_err("bad");
         let text = err.to_string();
         assert!(text.contains("line 3, column close: missing close"), "{text}");
         assert!(text.contains("line 4, column close: must be positive"), "{text}");
         assert!(text.contains("line 5, column date"), "{text}");
+    }
+}
+
+#[cfg(test)]
+mod media_type_tests {
+    use super::CsvHeader;
+    use crate::wire::SnapshotFormat;
+
+    #[test]
+    fn csv_media_types_carry_header_values_and_round_trip() {
+        let format = SnapshotFormat::Csv(CsvHeader { underlying: Some("A \"B\"; C".into()), as_of: None });
+        let media = format.media_type();
+        match SnapshotFormat::from_media_type(&media) {
+            Some(SnapshotFormat::Csv(h)) => assert_eq!(h.underlying.as_deref(), Some("A \"B\"; C")),
+            other => panic!("{media}: {other:?}"),
+        }
+        assert!(matches!(SnapshotFormat::from_media_type("application/json"), Some(SnapshotFormat::Json)));
+        assert!(SnapshotFormat::from_media_type("text/html").is_none());
     }
 }

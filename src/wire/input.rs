@@ -211,8 +211,12 @@ pub struct ValidSwaps {
     pub fit: Option<FitSpec>,
 }
 
-/// Parses JSON text into `T`, reporting the failing field's path.
-fn parse_json<T: for<'de> Deserialize<'de>>(text: &str) -> Result<T, InputErrors> {
+/// Parses a JSON document into `T` strictly (an object at the root), reporting the
+/// failing field's path; syntax errors are [`InputErrorKind::Malformed`](super::path::InputErrorKind).
+///
+/// # Errors
+/// [`InputErrors`] with the path of the failing field.
+pub fn parse_json<T: for<'de> Deserialize<'de>>(text: &str) -> Result<T, InputErrors> {
     // serde would also read a struct from a JSON array (fields by position); a
     // document must be an object with named fields.
     if !text.trim_start().starts_with('{') {

@@ -1,7 +1,7 @@
 //! Swap books and closes as users write them, their validation, and the valuation
 //! and realized-variance documents returned.
 
-use super::input::{ValidSnapshot, year_fraction};
+use super::input::{year_fraction, ValidSnapshot};
 use super::path::{FieldPath, InputErrors, Problem};
 use crate::analytics::analysis::Analysis;
 use crate::analytics::realized::{realized_variance, RealizedError, TRADING_DAYS_PER_YEAR};
@@ -216,7 +216,12 @@ fn positive(x: f64) -> bool {
 }
 
 /// Validates one position into the analytics type.
-fn position(doc: &PositionDoc, as_of: DateTime<Utc>, path: &FieldPath, problems: &mut Vec<Problem>) -> Option<SwapPosition> {
+fn position(
+    doc: &PositionDoc,
+    as_of: DateTime<Utc>,
+    path: &FieldPath,
+    problems: &mut Vec<Problem>,
+) -> Option<SwapPosition> {
     let before = problems.len();
     let mut push = |field: &str, message: String| problems.push(Problem { path: path.field(field), message });
     if doc.id.trim().is_empty() {
@@ -276,22 +281,30 @@ fn position(doc: &PositionDoc, as_of: DateTime<Utc>, path: &FieldPath, problems:
     let maturity = parse_time(&doc.maturity, path.field("maturity"), problems);
     if let (Some(s), Some(m)) = (start, maturity) {
         if m <= s {
-            problems.push(Problem { path: path.field("maturity"), message: format!("must be after start {}", doc.start) });
+            problems
+                .push(Problem { path: path.field("maturity"), message: format!("must be after start {}", doc.start) });
         }
     }
     let realized = match (&doc.realized, &doc.fixings) {
         (Some(_), Some(_)) => {
-            problems.push(Problem { path: path.field("fixings"), message: "give realized or fixings, not both".into() });
+            problems
+                .push(Problem { path: path.field("fixings"), message: "give realized or fixings, not both".into() });
             None
         }
         (None, None) => None,
         (Some(r), None) => {
             let rp = path.field("realized");
             if !(r.variance.is_finite() && r.variance >= 0.0) {
-                problems.push(Problem { path: rp.field("variance"), message: format!("must be non-negative, got {}", r.variance) });
+                problems.push(Problem {
+                    path: rp.field("variance"),
+                    message: format!("must be non-negative, got {}", r.variance),
+                });
             }
             if let Some(g) = r.gamma_variance.filter(|g| !(g.is_finite() && *g >= 0.0)) {
-                problems.push(Problem { path: rp.field("gamma_variance"), message: format!("must be non-negative, got {g}") });
+                problems.push(Problem {
+                    path: rp.field("gamma_variance"),
+                    message: format!("must be non-negative, got {g}"),
+                });
             }
             if let Some(s) = r.start_spot.filter(|s| !positive(*s)) {
                 problems.push(Problem { path: rp.field("start_spot"), message: format!("must be positive, got {s}") });
@@ -299,7 +312,11 @@ fn position(doc: &PositionDoc, as_of: DateTime<Utc>, path: &FieldPath, problems:
             Some(Accrued { variance: r.variance, gamma_variance: r.gamma_variance, start_spot: r.start_spot })
         }
         (None, Some(closes)) => match realized_variance(closes, TRADING_DAYS_PER_YEAR) {
-            Ok(r) => Some(Accrued { variance: r.variance, gamma_variance: Some(r.gamma_variance), start_spot: Some(r.start_spot) }),
+            Ok(r) => Some(Accrued {
+                variance: r.variance,
+                gamma_variance: Some(r.gamma_variance),
+                start_spot: Some(r.start_spot),
+            }),
             Err(RealizedError::BadClose { index, value }) => {
                 problems.push(Problem {
                     path: path.field("fixings").index(index),
@@ -387,7 +404,8 @@ pub fn value_book(snapshot: &ValidSnapshot, analysis: &Analysis, book: &BookDoc)
     }
     let market = market_of(&analysis.slices, snapshot.spot);
     let (shifted_variance, shifted_gamma) = shifted_levels(&analysis.slices, VOL_POINT);
-    let expiry_of = |s: &crate::analytics::analysis::SliceAnalysis| snapshot.expiries.get(s.input_index).cloned().flatten();
+    let expiry_of =
+        |s: &crate::analytics::analysis::SliceAnalysis| snapshot.expiries.get(s.input_index).cloned().flatten();
     let mut out = Vec::new();
     let mut totals = TotalsDoc { variance: None, gamma: None, leverage: None, book: TotalDoc::default() };
     for (i, p) in positions {
@@ -448,10 +466,12 @@ pub fn realized_doc(closes: &[Option<f64>], annualization: Option<f64>) -> Resul
     let mut problems = Vec::new();
     for (i, c) in closes.iter().enumerate() {
         match c {
-            None => problems.push(Problem { path: root.field("closes").index(i), message: "missing close (a gap in the series)".into() }),
-            Some(x) if !positive(*x) => {
-                problems.push(Problem { path: root.field("closes").index(i), message: format!("must be positive, got {x}") })
-            }
+            None => problems.push(Problem {
+                path: root.field("closes").index(i),
+                message: "missing close (a gap in the series)".into(),
+            }),
+            Some(x) if !positive(*x) => problems
+                .push(Problem { path: root.field("closes").index(i), message: format!("must be positive, got {x}") }),
             Some(_) => {}
         }
     }

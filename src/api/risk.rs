@@ -1,0 +1,128 @@
+//! `POST /v1/valuations` (a swap book against a snapshot, inline or stored) and
+//! `POST /v1/realized` (realized variance from closes).
+
+use super::body::JsonText;
+use super::error::{ApiError, ProblemDetails};
+use super::AppState;
+use crate::store::Store;
+use crate::wire::input::parse_json;
+use crate::wire::valuation::{self, BookDoc, ClosesDoc, PositionDoc, RealizedOutDoc, ValuationDoc};
+use crate::wire::{self, FieldPath, InputErrors, SnapshotFormat};
+use axum::extract::State;
+use axum::Json;
+use serde::Deserialize;
+use utoipa::ToSchema;
+
+/// A valuation request: the snapshot (inline, or the id of a stored one) and the
+/// positions.
+#[derive(Debug, Deserialize, ToSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ValuationRequest {
+    /// The snapshot to value against (or give `snapshot_id`).
+    #[serde(default)]
+    #[schema(value_type = Option<crate::wire::input::SnapshotDoc>)]
+    pub snapshot: Option<serde_json::Value>,
+    /// Id of a stored snapshot (or give `snapshot`).
+    #[serde(default)]
+    pub snapshot_id: Option<i64>,
+    /// The positions.
+    pub positions: Vec<PositionDoc>,
+}
+
+/// Example request of the valuation endpoint.
+pub fn valuation_example() -> serde_json::Value {
+    serde_json::json!({
+        "snapshot": super::docs::snapshot_example(),
+        "positions": [
+            {"id": "VS-0142", "kind": "variance", "start": "2026-09-30T21:00:00Z", "maturity": "2027-06-18T21:00:00Z",
+             "strike_vol": 0.21, "vega_notional": 100000.0, "side": "long",
+             "realized": {"variance": 0.0392}},
+            {"id": "LS-0007", "kind": "leverage", "start": "2026-11-30T15:30:00Z", "maturity": "2027-03-19T21:00:00Z",
+             "strike": -0.0015, "variance_notional": 2000000.0, "side": "short"}
+        ]
+    })
+}
+
+async fn valuation_snapshot(
+    state: &AppState,
+    request: &ValuationRequest,
+) -> Result<(String, SnapshotFormat, FieldPath), ApiError> {
+    let root = FieldPath::root();
+    match (&request.snapshot, request.snapshot_id) {
+        (Some(_), Some(_)) => {
+            Err(InputErrors::one(root.field("snapshot_id"), "give snapshot or snapshot_id, not both").into())
+        }
+        (None, None) => Err(InputErrors::one(root.field("snapshot"), "give snapshot or snapshot_id").into()),
+        (Some(doc), None) => Ok((doc.to_string(), SnapshotFormat::Json, root.field("snapshot"))),
+        (None, Some(id)) => {
+            let stored = state.store().get(id, true).await.map_err(|e| {
+                state.metrics().store_error("get");
+                ApiError::from(e)
+            })?;
+            let Some((media_type, text)) = stored.and_then(|s| s.input) else {
+                return Err(
+                    InputErrors::one(root.field("snapshot_id"), format!("no stored snapshot with id {id}")).into()
+                );
+            };
+            let format = SnapshotFormat::from_media_type(&media_type)
+                .ok_or_else(|| ApiError::Internal(format!("stored snapshot {id} has media type {media_type:?}")))?;
+            Ok((text, format, root.field("snapshot")))
+        }
+    }
+}
+
+/// Value a book of variance, gamma and leverage swaps.
+#[utoipa::path(
+    post, path = "/v1/valuations", tag = "risk",
+    request_body(content = ValuationRequest, content_type = "application/json", example = json!(valuation_example())),
+    responses(
+        (status = 200, description = "Values, legs, implied levels, vega by expiry and totals", body = ValuationDoc),
+        (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 403, description = "Read-only token", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 413, description = "Body over the limit", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 415, description = "Not `application/json`", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "Invalid values (a maturity beyond the last expiry included), each with its JSON pointer",
+         body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 503, description = "Store unavailable (with `snapshot_id`)", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn post_valuation(
+    State(state): State<AppState>,
+    JsonText(text): JsonText,
+) -> Result<Json<ValuationDoc>, ApiError> {
+    let request: ValuationRequest = parse_json(&text)?;
+    let (snapshot_text, format, prefix) = valuation_snapshot(&state, &request).await?;
+    let book = BookDoc { positions: request.positions };
+    let doc = tokio::task::spawn_blocking(move || -> Result<ValuationDoc, InputErrors> {
+        let parsed = wire::parse_snapshot_as(&snapshot_text, &format).map_err(|e| e.within(&prefix))?;
+        let (snapshot, analysis) = wire::analyze_valid(parsed).map_err(|e| e.within(&prefix))?;
+        valuation::value_book(&snapshot, &analysis, &book)
+    })
+    .await
+    .map_err(|e| ApiError::Internal(format!("valuation task failed: {e}")))??;
+    Ok(Json(doc))
+}
+
+/// Realized variance of daily closes.
+#[utoipa::path(
+    post, path = "/v1/realized", tag = "risk",
+    request_body(content = ClosesDoc, content_type = "application/json",
+                 example = json!({"closes": [4150.2, 4172.9, 4160.0, 4188.4, 4201.7], "annualization": 252})),
+    responses(
+        (status = 200, description = "Realized and gamma-weighted realized variance", body = RealizedOutDoc),
+        (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 403, description = "Read-only token", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 413, description = "Body over the limit", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 415, description = "Not `application/json`", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "Gaps or non-positive closes, each with its JSON pointer", body = ProblemDetails, content_type = "application/problem+json"),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn post_realized(JsonText(text): JsonText) -> Result<Json<RealizedOutDoc>, ApiError> {
+    let doc: ClosesDoc = parse_json(&text)?;
+    Ok(Json(valuation::realized_doc(&doc.closes, doc.annualization)?))
+}
