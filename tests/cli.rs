@@ -170,3 +170,54 @@ fn price_quotes_without_forward_analyse_through_the_binary() {
     assert!((vs / (vol * vol) - 1.0).abs() < 1e-9, "VS {vs}");
     assert!(doc.get("fit").is_none(), "model none: no fit");
 }
+
+#[test]
+fn value_the_demo_book() {
+    let out = logstrip(
+        &["value", "--book", "demo-data/kestrel50-book.json", "--snapshot", "demo-data/kestrel50-snapshot.json"],
+        None,
+    );
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let positions = doc["positions"].as_array().expect("positions");
+    assert_eq!(positions.len(), 5);
+    let total: f64 = positions.iter().map(|p| p["value"].as_f64().expect("value")).sum();
+    let book = doc["totals"]["book"]["value"].as_f64().expect("book value");
+    assert!((total - book).abs() <= 1e-9 * book.abs().max(1.0), "{total} vs {book}");
+    let expired = positions.iter().find(|p| p["id"] == "VS-2025-118").expect("expired position");
+    // Hand-computed: N (RV - K) = 1e6 (0.0429 - 0.04) = 2900 (D = 1 once paid).
+    assert!((expired["value"].as_f64().expect("value") - 2900.0).abs() < 1e-6, "{expired}");
+}
+
+#[test]
+fn realized_from_a_csv_of_closes_and_gaps_named_by_line() {
+    let out = logstrip(&["realized", "--closes", "demo-data/kestrel50-closes.csv"], None);
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    assert_eq!(doc["returns"], 10);
+    let dir = tempfile::tempdir().expect("temp dir");
+    let path = dir.path().join("gappy.csv");
+    std::fs::write(&path, "date,close\n2026-11-02,100\n2026-11-03,\n2026-11-04,101\n").expect("write");
+    let out = logstrip(&["realized", "--closes", path.to_str().expect("utf-8")], None);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("line 3, column close: missing close"));
+}
+
+#[test]
+fn analyze_a_csv_snapshot_with_header_values_from_flags() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let path = dir.path().join("quotes.csv");
+    let bare: String = logstrip::api::docs::CSV_SNAPSHOT_EXAMPLE
+        .lines()
+        .map(|l| l.splitn(3, ',').nth(2).unwrap_or("").to_string() + "\n")
+        .collect();
+    std::fs::write(&path, &bare).expect("write");
+    let file = path.to_str().expect("utf-8");
+    let out = logstrip(&["analyze", "--input", file, "--underlying", "HERON", "--as-of", "2026-11-30T15:30:00Z"], None);
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    assert_eq!(doc["underlying"], "HERON");
+    let out = logstrip(&["analyze", "--input", file], None);
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("line 1, column underlying"));
+}
