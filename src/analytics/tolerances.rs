@@ -83,6 +83,12 @@ pub const SVI_OUTER_COST_REL_TOL: f64 = 1e-12;
 /// parameters then agree to about 1e-10 relative, far inside the quotes' noise.
 pub const SVI_OUTER_STEP_TOL: f64 = 1e-10;
 
+/// A warm-started SVI fit (from the neighbouring expiry) is kept without searching
+/// the start grid when its weighted root-mean-square miss is at most this many half
+/// spreads: the grid could only find a fit better than the quotes can tell apart.
+/// Common practice (no source); a worse warm fit falls back to the grid.
+pub const SVI_WARM_START_ACCEPT_SPREADS: f64 = 1.0;
+
 /// Iteration cap of the SVI outer search; Gauss–Newton steps on the reduced cost
 /// take about ten (measured on the demo snapshot), the cap only stops a
 /// pathological input.
