@@ -5,6 +5,7 @@
 //! `c(k) = N(d1) - e^k N(d2)` and `p(k) = e^k N(-d2) - N(-d1)`,
 //! `d1 = -k/sqrt(w) + sqrt(w)/2`, `d2 = d1 - sqrt(w)`.
 
+use super::special::erfcx::erfcx_nonnegative;
 use super::tolerances::IMPLIED_VOL_REL_TOL;
 use std::f64::consts::{FRAC_1_SQRT_2, PI};
 
@@ -23,22 +24,56 @@ pub fn norm_pdf(x: f64) -> f64 {
 /// the call for `k >= 0`), undiscounted and in units of the forward, for total
 /// implied variance `w` (variance x years). Zero for `w <= 0` (intrinsic value).
 pub fn otm_price(k: f64, w: f64) -> f64 {
-    otm_price_given_exp(k, w, k.exp())
+    let call = mirrored_call(k, w);
+    if k < 0.0 {
+        call * k.exp()
+    } else {
+        call
+    }
 }
 
-/// [`otm_price`] with `exp_k = e^k` supplied by a caller that needs it anyway.
-pub fn otm_price_given_exp(k: f64, w: f64, exp_k: f64) -> f64 {
+/// The call price at log-moneyness `|k|` (unit forward, total variance `w`): the
+/// out-of-the-money price for `k >= 0`, and `e^-k` times it for `k < 0`, by the
+/// symmetry `p(k) = e^k c(-k)`. Zero for `w <= 0` or a NaN argument.
+///
+/// One exponential serves both terms. With `a = |k| / (sqrt(2 w))`,
+/// `b = sqrt(w / 8)`, `d1 = -sqrt(2) (a - b)` and `d2 = -sqrt(2) (a + b)`, and
+/// `e^k exp(-(a + b)^2) = exp(-(a - b)^2)`, so
+/// `c = (erfc(a - b) - exp(-(a - b)^2) erfcx(a + b)) / 2` with the scaled
+/// complementary error function `erfcx` ([`crate::analytics::special::erfcx`]).
+/// Accuracy against mpmath: tests/reference_identities.rs.
+pub fn mirrored_call(k: f64, w: f64) -> f64 {
     if w.is_nan() || w <= 0.0 {
         return 0.0;
     }
     let s = w.sqrt();
-    let d1 = -k / s + 0.5 * s;
-    let d2 = d1 - s;
-    if k >= 0.0 {
-        (norm_cdf(d1) - exp_k * norm_cdf(d2)).max(0.0)
+    let a = k.abs() / s * FRAC_1_SQRT_2;
+    let b = s * (0.5 * FRAC_1_SQRT_2);
+    let near = a - b;
+    let far = a + b;
+    let gauss = exp_neg_square(near);
+    let call = if near >= 0.0 {
+        0.5 * gauss * (erfcx_nonnegative(near) - erfcx_nonnegative(far))
     } else {
-        (exp_k * norm_cdf(-d2) - norm_cdf(-d1)).max(0.0)
-    }
+        // erfc(near) = 2 - erfc(-near) for the at- and in-the-money side of d1.
+        1.0 - 0.5 * gauss * (erfcx_nonnegative(-near) + erfcx_nonnegative(far))
+    };
+    call.max(0.0)
+}
+
+/// `exp(-x^2)` with `x^2` split exactly into a double and its rounding error
+/// (Veltkamp's split; Dekker 1971, Numer. Math. 18, "A floating-point technique
+/// for extending the available precision"), so that the exponential does not
+/// amplify the rounding of the square (`x^2` up to about 40 in the wings, where
+/// it would cost 40 ulps).
+fn exp_neg_square(x: f64) -> f64 {
+    const SPLITTER: f64 = 134_217_729.0; // 2^27 + 1
+    let scaled = SPLITTER * x;
+    let high = scaled - (scaled - x);
+    let low = x - high;
+    let square = x * x;
+    let error = ((high * high - square) + 2.0 * high * low) + low * low;
+    (-square).exp() * (1.0 - error)
 }
 
 /// Sensitivity of [`otm_price`] to `s = sqrt(w)`: the density at `d1` (the same

@@ -7,7 +7,7 @@
 //! `GS = (2/tau) Int otm(k) dk`, and the leverage swap with its own integrand
 //! `LS = (2/tau) Int otm(k) (1 - e^-k) dk`, so that it does not cancel.
 
-use super::black::{otm_price, otm_price_given_exp};
+use super::black::mirrored_call;
 use super::quadrature::{integrate, QuadratureTolerance};
 use super::smile::SmileShape;
 use super::tolerances::{
@@ -57,9 +57,9 @@ fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, fi
             return (points, false);
         }
         points.push(k);
-        let price = otm_price(k, curve.total_variance(k));
-        let largest = if k < 0.0 { price * (-k).exp() } else { price };
-        if largest < OTM_PRICE_CUTOFF {
+        // The call at |k| is the call itself, or on the put side the put in units
+        // of the strike: the larger of the two.
+        if mirrored_call(k, curve.total_variance(k)) < OTM_PRICE_CUTOFF {
             return (points, true);
         }
         step *= 1.6;
@@ -91,12 +91,19 @@ fn subdivide(breaks: &[f64], parts: usize) -> Vec<f64> {
 /// is the range of quoted log-moneyness; what lies beyond it counts as wing.
 pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64) -> Replication {
     let integrand = |k: f64| {
-        let discount_to_strike = (-k).exp();
-        let price = otm_price_given_exp(k, curve.total_variance(k), discount_to_strike.recip());
-        // 1 - e^-k, through expm1 near k = 0 where the difference would cancel.
-        let leverage_weight =
-            if k.abs() < DIRECT_LEVERAGE_WEIGHT_FROM { -(-k).exp_m1() } else { 1.0 - discount_to_strike };
-        [price * discount_to_strike, price, price * leverage_weight]
+        // With c the call at |k| and q = e^-|k|: for k >= 0, otm = c and
+        // otm e^-k = c q; for k < 0, otm = c q (put-call symmetry) and otm e^-k = c.
+        // The leverage weight otm (1 - e^-k) is sign(k) c (1 - q) on both sides.
+        let call = mirrored_call(k, curve.total_variance(k));
+        let k_abs = k.abs();
+        let q = (-k_abs).exp();
+        // 1 - q, through expm1 near k = 0 where the difference would cancel.
+        let one_minus_q = if k_abs < DIRECT_LEVERAGE_WEIGHT_FROM { -(-k_abs).exp_m1() } else { 1.0 - q };
+        if k >= 0.0 {
+            [call * q, call, call * one_minus_q]
+        } else {
+            [call, call * q, -(call * one_minus_q)]
+        }
     };
     let (k_lo, k_hi) = (quoted.0.min(0.0), quoted.1.max(0.0));
     let first_step = |k: f64| curve.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);

@@ -234,12 +234,25 @@ pub fn fit_smiles(
     slices: &[(&[SmileQuote], f64)],
     method: SmileMethod,
 ) -> Result<Vec<FittedSmile>, (usize, SmileError)> {
-    let first: Vec<FittedSmile> = slices
-        .iter()
-        .enumerate()
-        .map(|(i, (quotes, tau))| fit_smile(quotes, *tau, method).map_err(|e| (i, e)))
-        .collect::<Result<_, _>>()?;
-    if method != SmileMethod::Svi || slices.len() < SMOOTHING_MIN_SLICES {
+    if method != SmileMethod::Svi {
+        return slices
+            .iter()
+            .enumerate()
+            .map(|(i, (quotes, tau))| fit_smile(quotes, *tau, method).map_err(|e| (i, e)))
+            .collect();
+    }
+    // Each expiry's search starts from its predecessor's fit (in units of the ATM
+    // deviation); the start grid runs only when that start does not fit well.
+    let mut first: Vec<FittedSmile> = Vec::with_capacity(slices.len());
+    for (i, (quotes, tau)) in slices.iter().enumerate() {
+        check_quotes(quotes, *tau).map_err(|e| (i, e))?;
+        let warm = first.last().and_then(|f: &FittedSmile| match &f.curve {
+            SmileCurve::Svi(p) => svi::WarmStart::from_params(p),
+            _ => None,
+        });
+        first.push(svi::fit_from(quotes, *tau, svi::SlopePrior::default(), warm).map_err(|e| (i, e))?);
+    }
+    if slices.len() < SMOOTHING_MIN_SLICES {
         return Ok(first);
     }
     let sd: Vec<f64> = first.iter().map(|f| f.curve.total_variance(0.0).max(1e-12).sqrt()).collect();
@@ -271,7 +284,11 @@ pub fn fit_smiles(
         if agrees(own_left, prior.left) && agrees(own_right, prior.right) {
             continue;
         }
-        if let Ok(refit) = svi::fit_with_prior(quotes, *tau, prior) {
+        let own = match &out[i].curve {
+            SmileCurve::Svi(p) => svi::WarmStart::from_params(p),
+            _ => None,
+        };
+        if let Ok(refit) = svi::fit_from(quotes, *tau, prior, own) {
             out[i] = refit;
         }
     }

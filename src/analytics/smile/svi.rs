@@ -11,7 +11,7 @@ use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuot
 use crate::analytics::stats::median;
 use crate::analytics::tolerances::{
     DEFAULT_HALF_SPREAD_VOL, MAX_WING_SLOPE, OUTLIER_FLOOR_VOL, OUTLIER_SIGMAS, SVI_OUTER_COST_REL_TOL,
-    SVI_OUTER_MAX_DAMPING_TRIES, SVI_OUTER_MAX_ITERATIONS, SVI_OUTER_STEP_TOL,
+    SVI_OUTER_MAX_DAMPING_TRIES, SVI_OUTER_MAX_ITERATIONS, SVI_OUTER_STEP_TOL, SVI_WARM_START_ACCEPT_SPREADS,
 };
 
 /// Ridge on the wing slopes `s_L^2 + s_R^2`, in units where a slope `s` costs like
@@ -508,8 +508,41 @@ fn params_from(m: f64, sigma: f64, x: [f64; 3]) -> SviParams {
     SviParams { a, b, rho, m, sigma }
 }
 
+/// A start for the outer search taken from another fit: `(m, sigma)` in units of
+/// that fit's at-the-money standard deviation `sqrt(w(0))`, so that it carries over
+/// to a neighbouring expiry (smiles widen roughly with that deviation).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WarmStart {
+    /// `m / sqrt(w(0))`.
+    pub m_per_sd: f64,
+    /// `sigma / sqrt(w(0))`.
+    pub sigma_per_sd: f64,
+}
+
+impl WarmStart {
+    /// The start a fitted smile gives; `None` for a degenerate one.
+    pub fn from_params(p: &SviParams) -> Option<Self> {
+        let sd = p.total_variance(0.0).sqrt();
+        let start = Self { m_per_sd: p.m / sd, sigma_per_sd: p.sigma / sd };
+        (sd > 0.0 && start.m_per_sd.is_finite() && start.sigma_per_sd > 0.0 && start.sigma_per_sd.is_finite())
+            .then_some(start)
+    }
+}
+
 /// Fits SVI to the quotes with weights (zero leaves a quote out).
-fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64, prior: SlopePrior) -> SviParams {
+///
+/// With a warm start, the search runs from it first, and the start grid is skipped
+/// when that search ends with a cost of at most `good_enough` (the caller's measure
+/// of a fit within the quotes' noise); otherwise the grid runs as without it and the
+/// better of the two results is kept.
+fn fit_weighted(
+    k: &[f64],
+    w: &[f64],
+    weight: &[f64],
+    atm_sd: f64,
+    prior: SlopePrior,
+    warm: Option<(WarmStart, f64)>,
+) -> SviParams {
     let w_max = w.iter().cloned().fold(0.0, f64::max);
     let n_eff = weight.iter().filter(|x| **x > 0.0).count() as f64;
     let prior = SlopePrior { strength: prior.strength * n_eff * atm_sd * atm_sd, ..prior };
@@ -518,6 +551,16 @@ fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64, prior: SlopeP
     let k_hi = k.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
     let span = (k_hi - k_lo).max(1e-3);
     let m_range = (k_lo, k_hi);
+    let warm_result = warm.map(|(start, good_enough)| {
+        let sigma = (start.sigma_per_sd * atm_sd).clamp(1e-4, 7.0);
+        let point = inner.outer_point(m_range, start.m_per_sd * atm_sd, sigma.ln());
+        (inner.search_outer(m_range, point), good_enough)
+    });
+    if let Some((best, good_enough)) = warm_result {
+        if best.cost <= good_enough {
+            return params_from(best.m, best.ln_sigma.exp(), best.x);
+        }
+    }
     // Coarse grid for the start (the outer problem is not convex).
     let mut start: Option<OuterPoint> = None;
     for i in 0..3 {
@@ -531,7 +574,12 @@ fn fit_weighted(k: &[f64], w: &[f64], weight: &[f64], atm_sd: f64, prior: SlopeP
         }
     }
     let start = start.unwrap_or_else(|| inner.outer_point(m_range, 0.5 * (k_lo + k_hi), atm_sd.max(1e-4).ln()));
-    let best = inner.search_outer(m_range, start);
+    let mut best = inner.search_outer(m_range, start);
+    if let Some((warm_best, _)) = warm_result {
+        if warm_best.cost < best.cost {
+            best = warm_best;
+        }
+    }
     params_from(best.m, best.ln_sigma.exp(), best.x)
 }
 
@@ -552,6 +600,22 @@ pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
 /// # Errors
 /// [`SmileError`] for unusable quotes (see [`super::fit_smile`]).
 pub fn fit_with_prior(quotes: &[SmileQuote], tau: f64, prior: SlopePrior) -> Result<FittedSmile, SmileError> {
+    fit_from(quotes, tau, prior, None)
+}
+
+/// [`fit_with_prior`] with the outer search started from `warm` (a neighbouring
+/// expiry's fit, or an earlier fit of the same quotes). The start grid then runs only
+/// when the warm-started fit misses the quotes by more than their half spreads
+/// (weighted root mean square, `SVI_WARM_START_ACCEPT_SPREADS`).
+///
+/// # Errors
+/// [`SmileError`] for unusable quotes (see [`super::fit_smile`]).
+pub fn fit_from(
+    quotes: &[SmileQuote],
+    tau: f64,
+    prior: SlopePrior,
+    warm: Option<WarmStart>,
+) -> Result<FittedSmile, SmileError> {
     let n = quotes.len();
     let k: Vec<f64> = quotes.iter().map(|q| q.k).collect();
     let w: Vec<f64> = quotes.iter().map(|q| q.vol * q.vol * tau).collect();
@@ -563,10 +627,14 @@ pub fn fit_with_prior(quotes: &[SmileQuote], tau: f64, prior: SlopePrior) -> Res
     let mut weight: Vec<f64> = (0..n).map(|i| 1.0 / (2.0 * quotes[i].vol * tau * half_spread[i]).powi(2)).collect();
     let norm = weight.iter().sum::<f64>() / n as f64;
     weight.iter_mut().for_each(|x| *x /= norm);
+    // With the normalised weights, cost * norm is the sum of squared misses in
+    // units of the half spreads: a fit whose root mean square miss is within
+    // SVI_WARM_START_ACCEPT_SPREADS half spreads is as good as the quotes tell.
+    let good_enough = |used: usize| SVI_WARM_START_ACCEPT_SPREADS.powi(2) * used as f64 / norm;
     let atm_index = k.iter().enumerate().min_by(|a, b| a.1.abs().total_cmp(&b.1.abs())).map_or(0, |(i, _)| i);
     let atm_sd = w[atm_index].sqrt();
 
-    let first = fit_weighted(&k, &w, &weight, atm_sd, prior);
+    let first = fit_weighted(&k, &w, &weight, atm_sd, prior, warm.map(|start| (start, good_enough(n))));
     let residual: Vec<f64> =
         (0..n).map(|i| (first.total_variance(k[i]).max(0.0) / tau).sqrt() - quotes[i].vol).collect();
     let abs_res: Vec<f64> = residual.iter().map(|r| r.abs()).collect();
@@ -589,7 +657,9 @@ pub fn fit_with_prior(quotes: &[SmileQuote], tau: f64, prior: SlopePrior) -> Res
         for (i, _) in &candidates {
             wt[*i] = 0.0;
         }
-        fit_weighted(&k, &w, &wt, atm_sd, prior)
+        // The fit without the left-out quotes starts from the fit with them.
+        let own = WarmStart::from_params(&first).map(|start| (start, good_enough(n - candidates.len())));
+        fit_weighted(&k, &w, &wt, atm_sd, prior, own)
     };
     candidates.sort_by_key(|c| c.0);
     let curve = SmileCurve::Svi(params);
@@ -621,6 +691,27 @@ mod tests {
         // Tolerance: 1e-7 in vol, limited by the outer search's convergence in (m, sigma).
         assert!(fit.rmse_vol < 1e-7, "rmse {:e}", fit.rmse_vol);
         assert!(fit.excluded.is_empty());
+    }
+
+    #[test]
+    fn a_bad_warm_start_falls_back_to_the_grid() {
+        // Identity as above, from a start far off in m and sigma: the fit must end as
+        // good as without a start (tolerance of the ridge test below, 1e-3 in vol).
+        let truth = SviParams { a: 0.01, b: 0.08, rho: -0.5, m: 0.05, sigma: 0.15 };
+        let quotes = quotes_of(&truth, 0.5, Some(0.001));
+        let cold = fit_from(&quotes, 0.5, SlopePrior::default(), None).expect("fit");
+        for start in
+            [WarmStart { m_per_sd: 40.0, sigma_per_sd: 1e-3 }, WarmStart { m_per_sd: -5.0, sigma_per_sd: 30.0 }]
+        {
+            let warm = fit_from(&quotes, 0.5, SlopePrior::default(), Some(start)).expect("fit");
+            assert!(warm.rmse_vol < 1e-3, "{start:?}: rmse {:e}", warm.rmse_vol);
+            assert!(
+                warm.rmse_vol <= cold.rmse_vol * (1.0 + 1e-6) + 1e-12,
+                "{start:?}: {} vs {}",
+                warm.rmse_vol,
+                cold.rmse_vol
+            );
+        }
     }
 
     #[test]
@@ -674,7 +765,7 @@ mod tests {
             .map(|(i, x)| truth.total_variance(*x) + 0.002 * ((i * 7 % 5) as f64 - 2.0) / 2.0)
             .collect();
         let weight = vec![1.0; k.len()];
-        let fitted = fit_weighted(&k, &w, &weight, 0.15, SlopePrior::default());
+        let fitted = fit_weighted(&k, &w, &weight, 0.15, SlopePrior::default(), None);
         // The inner problem exactly as fit_weighted sets it up.
         let prior = SlopePrior { strength: SVI_WING_RIDGE * k.len() as f64 * 0.15 * 0.15, ..SlopePrior::default() };
         let w_max = w.iter().cloned().fold(0.0, f64::max);
