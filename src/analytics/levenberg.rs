@@ -58,6 +58,13 @@ impl LevenbergMarquardt {
         self
     }
 
+    /// The residuals at the last point the solver returned (after a run: at its result).
+    /// After a final step small enough to be taken without an evaluation, they are the
+    /// linear model's `r + J d`, exact to second order in the step.
+    pub fn residual(&self) -> Option<&DVector<f64>> {
+        self.residual.as_ref()
+    }
+
     /// `x` clamped into the box.
     fn project(&self, mut x: DVector<f64>) -> DVector<f64> {
         if let Some((lo, hi)) = &self.bounds {
@@ -185,13 +192,17 @@ where
                     self.converged = true;
                     let trial = self.project(&x + &step);
                     let tiny = step.iter().zip(x.iter()).all(|(d, v)| d.abs() <= TINY_STEP * (1.0 + v.abs()));
-                    if tiny {
-                        return Ok((state.param(trial).cost(cost - gain.max(0.0)), None));
+                    if tiny && gain > 0.0 {
+                        self.residual = Some(&r + &j * &step);
+                        return Ok((state.param(trial).cost(cost - gain), None));
                     }
-                    let c_trial = problem.apply(&trial)?.norm_squared();
+                    let r_trial = problem.apply(&trial)?;
+                    let c_trial = r_trial.norm_squared();
                     let state = if c_trial.is_finite() && c_trial < cost {
+                        self.residual = Some(r_trial);
                         state.param(trial).cost(c_trial)
                     } else {
+                        self.residual = Some(r);
                         state.param(x).cost(cost)
                     };
                     return Ok((state, None));
