@@ -404,11 +404,13 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let mut iterations = 0;
     let mut status = FitStatus::Converged;
     let mut x_best = x0.clone();
+    let mut residual_best = None;
     if !free.is_empty() {
         let gn = run_levenberg_marquardt(&problem, &x0);
         match gn {
-            Ok((x, iters, reason)) => {
+            Ok((x, iters, reason, residual)) => {
                 x_best = x;
+                residual_best = residual;
                 iterations = iters;
                 if reason != Some(TerminationReason::SolverConverged) {
                     status = FitStatus::MaxIterations;
@@ -419,7 +421,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             Err(e) => {
                 let nm = run_nelder_mead(&problem, &x0);
                 match nm {
-                    Ok((x, iters, reason)) => {
+                    Ok((x, iters, reason, _)) => {
                         x_best = layout.project(&x);
                         iterations = iters;
                         let how = if reason == Some(TerminationReason::SolverConverged) {
@@ -439,9 +441,14 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         }
     }
     let params = layout.to_params(&x_best);
-    let model_total = match curve.total_leverage(&params) {
-        Ok(m) => m,
-        Err(e) => return failed(e.to_string(), params),
+    // The solver's residuals at its result give the model values without another
+    // evaluation (after a final step taken on the linear model there is none cached).
+    let model_total = match residual_best {
+        Some(r) if r.len() == n => r.iter().zip(&market_total).zip(&scale).map(|((r, t), s)| t + r / s).collect(),
+        _ => match curve.total_leverage(&params) {
+            Ok(m) => m,
+            Err(e) => return failed(e.to_string(), params),
+        },
     };
     let model_leverage_swap: Vec<f64> = model_total.iter().zip(&target.taus).map(|(l, t)| l / t).collect();
     let leverage_rmse =
@@ -481,7 +488,9 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     }
 }
 
-type SolverRun = Result<(Vec<f64>, u64, Option<TerminationReason>), ArgminError>;
+/// The point reached, iterations, why the run ended, and the residuals at the point
+/// when the solver has them.
+type SolverRun = Result<(Vec<f64>, u64, Option<TerminationReason>, Option<Vec<f64>>), ArgminError>;
 
 fn run_levenberg_marquardt(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolverRun {
     let (lower, upper) = problem.layout.bounds();
@@ -493,8 +502,12 @@ fn run_levenberg_marquardt(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolverR
         .run()?;
     let iters = res.state.get_iter();
     let reason = res.state.get_termination_reason().cloned();
-    let x = res.state.get_best_param().map(|p| p.as_slice().to_vec()).unwrap_or_else(|| x0.to_vec());
-    Ok((x, iters, reason))
+    let best = res.state.get_best_param();
+    // The solver's residuals belong to its last point, which is the best one unless the
+    // last iteration did not improve.
+    let residual = res.solver.residual().filter(|_| best == res.state.get_param()).map(|r| r.as_slice().to_vec());
+    let x = best.map(|p| p.as_slice().to_vec()).unwrap_or_else(|| x0.to_vec());
+    Ok((x, iters, reason, residual))
 }
 
 fn run_nelder_mead(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolverRun {
@@ -512,7 +525,7 @@ fn run_nelder_mead(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolverRun {
     let iters = res.state.get_iter();
     let reason = res.state.get_termination_reason().cloned();
     let x = res.state.get_best_param().cloned().unwrap_or_else(|| x0.to_vec());
-    Ok((x, iters, reason))
+    Ok((x, iters, reason, None))
 }
 
 /// Piecewise-constant forward variance from variance swap levels (MATH.md

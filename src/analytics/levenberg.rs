@@ -38,9 +38,15 @@ pub struct LevenbergMarquardt {
 /// working precision.
 const MAX_DAMPING_TRIES: usize = 30;
 
+/// A final step whose every component is below this times `1 + |x_i|` is taken without
+/// evaluating the residuals there: the linear model's error is second order in the step
+/// (about 1e-12 relative of the step's own effect), far below any tolerance.
+const TINY_STEP: f64 = 1e-6;
+
 impl LevenbergMarquardt {
     /// A solver that stops when an accepted step reduces the sum of squares by less
-    /// than `relative_tolerance` of itself, or when no damping reduces it at all.
+    /// than `relative_tolerance` of itself, when the undamped step from the current point
+    /// is predicted to reduce it by less than that, or when no damping reduces it at all.
     pub fn new(relative_tolerance: f64) -> Self {
         Self { damping: 1e-3, relative_tolerance, bounds: None, residual: None, converged: false }
     }
@@ -50,6 +56,13 @@ impl LevenbergMarquardt {
     pub fn with_bounds(mut self, lower: Vec<f64>, upper: Vec<f64>) -> Self {
         self.bounds = Some((lower, upper));
         self
+    }
+
+    /// The residuals at the last point the solver returned (after a run: at its result).
+    /// After a final step small enough to be taken without an evaluation, they are the
+    /// linear model's `r + J d`, exact to second order in the step.
+    pub fn residual(&self) -> Option<&DVector<f64>> {
+        self.residual.as_ref()
     }
 
     /// `x` clamped into the box.
@@ -111,6 +124,12 @@ impl LevenbergMarquardt {
     }
 }
 
+/// The reduction of the sum of squares `|r|^2` that the linear model `r + J d` predicts for
+/// the step `d`: `-(2 g.d + d.(J^T J).d)` with `g = J^T r`.
+fn predicted_gain(jtj: &DMatrix<f64>, g: &DVector<f64>, d: &DVector<f64>) -> f64 {
+    -(2.0 * g.dot(d) + d.dot(&(jtj * d)))
+}
+
 impl<O> Solver<O, LmState> for LevenbergMarquardt
 where
     O: Operator<Param = DVector<f64>, Output = DVector<f64>> + Jacobian<Param = DVector<f64>, Jacobian = DMatrix<f64>>,
@@ -149,6 +168,47 @@ where
             })
             .collect();
         let tries = if on_bound.iter().all(|&b| b) { 0 } else { MAX_DAMPING_TRIES };
+        // The standard stop before paying for damped trials: when even the undamped
+        // (Gauss–Newton) step, the largest gain the linear model offers from here, would
+        // reduce the sum of squares by no more than the tolerance, the solve ends. A damped
+        // step cannot serve for this test (it is short without being near a minimum), and
+        // this close to the minimum a trial's actual gain is rounding, which used to cost
+        // a string of rejected trials. The step is still taken, to end at the model's
+        // minimum: without an evaluation when it is tiny (the linear model is then exact
+        // to far below the tolerance), else after one evaluation that must not raise the
+        // sum of squares.
+        if tries > 0 {
+            let mut a = jtj.clone();
+            for i in 0..n {
+                a[(i, i)] += diag_floor;
+            }
+            let mut held = on_bound.clone();
+            // Only a step that no bound cut is the model's minimum on the free face (a cut
+            // step's predicted gain can even be negative), so only such a step decides.
+            let step = self.bounded_step(&a, &g, &x, &mut held).filter(|_| held == on_bound);
+            if let Some(step) = step {
+                let gain = predicted_gain(&jtj, &g, &step);
+                if gain <= self.relative_tolerance * cost {
+                    self.converged = true;
+                    let trial = self.project(&x + &step);
+                    let tiny = step.iter().zip(x.iter()).all(|(d, v)| d.abs() <= TINY_STEP * (1.0 + v.abs()));
+                    if tiny && gain > 0.0 {
+                        self.residual = Some(&r + &j * &step);
+                        return Ok((state.param(trial).cost(cost - gain), None));
+                    }
+                    let r_trial = problem.apply(&trial)?;
+                    let c_trial = r_trial.norm_squared();
+                    let state = if c_trial.is_finite() && c_trial < cost {
+                        self.residual = Some(r_trial);
+                        state.param(trial).cost(c_trial)
+                    } else {
+                        self.residual = Some(r);
+                        state.param(x).cost(cost)
+                    };
+                    return Ok((state, None));
+                }
+            }
+        }
         for _ in 0..tries {
             let mut a = jtj.clone();
             for i in 0..n {

@@ -18,7 +18,7 @@ const FRAC_1_SQRT_PI: f64 = 0.564_189_583_547_756_3;
 /// `erfcx(x) = exp(x^2) erfc(x)` for `x >= 0` (and NaN for NaN). Negative arguments
 /// are the caller's business (`erfcx(-x) = 2 exp(x^2) - erfcx(x)` grows without
 /// bound); they are clamped to 0 here.
-#[inline]
+#[inline(always)]
 pub fn erfcx_nonnegative(x: f64) -> f64 {
     if x < 8.0 {
         // `as usize` saturates: NaN and negative arguments map to piece 0.
