@@ -23,6 +23,9 @@ enum Command {
         input: PathBuf,
         #[command(flatten)]
         snapshot: cli::SnapshotFlags,
+        /// Also draw the term structures into this SVG file.
+        #[arg(long)]
+        svg: Option<PathBuf>,
         /// Indent the JSON output.
         #[arg(long)]
         pretty: bool,
@@ -62,6 +65,8 @@ enum Command {
         #[arg(long)]
         pretty: bool,
     },
+    /// Load the invented demo day, show how close the fits came to the truth, and serve.
+    Demo(cli::demo::DemoArgs),
     /// Load every snapshot file under a directory into the store or a running service.
     Backfill(cli::backfill::BackfillArgs),
     /// Serve the HTTP API, keeping every analysis in the history store.
@@ -83,7 +88,9 @@ fn main() -> ExitCode {
     let args = Args::parse();
     let mut stdout = std::io::stdout().lock();
     let result: Result<(), CliError> = match args.command {
-        Command::Analyze { input, snapshot, pretty } => cli::run_analyze(&input, &snapshot, pretty, &mut stdout),
+        Command::Analyze { input, snapshot, svg, pretty } => {
+            cli::run_analyze(&input, &snapshot, svg.as_deref(), pretty, &mut stdout)
+        }
         Command::Value { book, snapshot, snapshot_flags, pretty } => {
             cli::run_value(&book, &snapshot, &snapshot_flags, pretty, &mut stdout)
         }
@@ -97,6 +104,7 @@ fn main() -> ExitCode {
             cli::serve::run_serve(&args)
         }
         Command::Openapi => cli::run_openapi(&mut stdout),
+        Command::Demo(args) => cli::demo::run_demo(&args, &mut stdout),
         Command::Backfill(args) => cli::backfill::run_backfill(&args, &mut stdout),
     };
     match result {

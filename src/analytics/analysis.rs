@@ -112,10 +112,12 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
         let replication = replicate(&smile.curve, smile.quoted_range, tau);
         let mut warnings: Vec<String> = slice.notes().to_vec();
         for (i, distance) in &smile.excluded {
+            // `distance` is fitted smile minus quote: negative when the quote is above.
+            let side = if *distance < 0.0 { "above" } else { "below" };
             warnings.push(format!(
-                "quote at strike {} is {:.1} vol points from the fitted smile: left out as off-market",
+                "quote at strike {} is {:.1} vol points {side} the fitted smile: left out as off-market",
                 slice.strikes()[*i],
-                distance * 100.0
+                distance.abs() * 100.0
             ));
         }
         let (k_lo, k_hi) = smile.quoted_range;

@@ -52,9 +52,10 @@ pub struct Access {
     pub read: Option<Token>,
 }
 
-/// Paths open to all: probes and the API description.
+/// Paths open to all: probes, the API description and the overview page (whose data
+/// requests carry the token the reader enters).
 fn is_public(path: &str) -> bool {
-    matches!(path, "/healthz" | "/readyz" | "/openapi.json")
+    matches!(path, "/" | "/healthz" | "/readyz" | "/openapi.json")
 }
 
 fn bearer(request: &Request) -> Option<&str> {

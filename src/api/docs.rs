@@ -158,6 +158,9 @@ impl Modify for BearerSecurity {
         super::handlers::get_underlyings,
         super::handlers::get_latest,
         super::history::get_history,
+        super::charts::get_latest_chart,
+        super::charts::get_history_chart,
+        super::charts::get_overview,
         super::handlers::healthz,
         super::handlers::readyz,
         super::handlers::get_metrics,
@@ -181,6 +184,7 @@ impl Modify for BearerSecurity {
         (name = "fits", description = "Fit the model to swap levels"),
         (name = "risk", description = "Value swap books; realized variance"),
         (name = "underlyings", description = "Latest analyses and history"),
+        (name = "charts", description = "SVG charts and the overview page"),
         (name = "operations", description = "Probes, metrics and this document")
     )
 )]

@@ -136,7 +136,11 @@ struct ParamsView {
     mean_reversion: Option<f64>,
 }
 
-fn history_item(record: &StoredSnapshot) -> Result<HistoryItem, ApiError> {
+/// The history view of a stored analysis.
+///
+/// # Errors
+/// [`ApiError::Internal`] when the stored analysis cannot be read.
+pub fn history_item(record: &StoredSnapshot) -> Result<HistoryItem, ApiError> {
     let view: StoredView = serde_json::from_str(&record.analysis)
         .map_err(|e| ApiError::Internal(format!("stored analysis {}: {e}", record.id)))?;
     let mut curve = view.curve;

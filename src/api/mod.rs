@@ -8,6 +8,7 @@
 
 pub mod auth;
 pub mod body;
+pub mod charts;
 pub mod docs;
 pub mod error;
 pub mod handlers;
@@ -94,6 +95,9 @@ pub fn router(state: AppState) -> Router {
         .route("/v1/underlyings", get(handlers::get_underlyings))
         .route("/v1/underlyings/{underlying}/latest", get(handlers::get_latest))
         .route("/v1/underlyings/{underlying}/history", get(history::get_history))
+        .route("/v1/underlyings/{underlying}/latest/chart.svg", get(charts::get_latest_chart))
+        .route("/v1/underlyings/{underlying}/history/chart.svg", get(charts::get_history_chart))
+        .route("/", get(charts::get_overview))
         .route("/healthz", get(handlers::healthz))
         .route("/readyz", get(handlers::readyz))
         .route("/metrics", get(handlers::get_metrics))

@@ -3,6 +3,7 @@
 
 pub mod backfill;
 pub mod bench;
+pub mod demo;
 pub mod serve;
 
 use crate::analytics::analysis::Analysis;
@@ -126,9 +127,40 @@ fn analyze_file(input: &Path, flags: &SnapshotFlags) -> Result<(wire::ValidSnaps
 ///
 /// # Errors
 /// [`CliError`] for unreadable or invalid input.
-pub fn run_analyze(input: &Path, flags: &SnapshotFlags, pretty: bool, out: &mut dyn Write) -> Result<(), CliError> {
+pub fn run_analyze(
+    input: &Path,
+    flags: &SnapshotFlags,
+    svg: Option<&Path>,
+    pretty: bool,
+    out: &mut dyn Write,
+) -> Result<(), CliError> {
     let (snapshot, analysis) = analyze_file(input, flags)?;
-    write_json(&output::analysis_doc(&snapshot, &analysis), pretty, out)
+    let doc = output::analysis_doc(&snapshot, &analysis);
+    if let Some(path) = svg {
+        let points = term_points(&doc);
+        let title = format!("{}  as of {}", doc.underlying, doc.as_of);
+        let chart = crate::charts::term_structure_svg(&title, &points)
+            .map_err(|e| CliError::Io { path: path.display().to_string(), source: std::io::Error::other(e) })?;
+        std::fs::write(path, chart).map_err(|source| CliError::Io { path: path.display().to_string(), source })?;
+    }
+    write_json(&doc, pretty, out)
+}
+
+/// The chart points of an analysis.
+fn term_points(doc: &output::AnalysisDoc) -> Vec<crate::charts::TermPoint> {
+    let model = doc.fit.as_ref().map(|f| f.model_leverage_swap.as_slice()).unwrap_or(&[]);
+    doc.curve
+        .iter()
+        .enumerate()
+        .map(|(i, c)| crate::charts::TermPoint {
+            tau: c.tau,
+            variance_swap: c.variance_swap,
+            gamma_swap: c.gamma_swap,
+            leverage_swap: c.leverage_swap,
+            forward_variance: Some(c.forward_variance),
+            model_leverage_swap: model.get(i).copied(),
+        })
+        .collect()
 }
 
 /// `logstrip value`: a book of swaps valued against a snapshot, with vega by expiry.

@@ -139,7 +139,8 @@ impl ServeConfig {
     }
 }
 
-fn init_logging(format: LogFormat) {
+/// Installs the log subscriber (filter from `LOGSTRIP_LOG`, default `info`).
+pub fn init_logging(format: LogFormat) {
     let filter = tracing_subscriber::EnvFilter::try_from_env("LOGSTRIP_LOG")
         .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info"));
     let builder = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr);
@@ -150,7 +151,7 @@ fn init_logging(format: LogFormat) {
 }
 
 /// Resolves on SIGINT or SIGTERM.
-async fn termination_signal() {
+pub async fn termination_signal() {
     let interrupt = tokio::signal::ctrl_c();
     #[cfg(unix)]
     {

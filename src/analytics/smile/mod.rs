@@ -142,7 +142,8 @@ pub struct FittedSmile {
     pub curve: SmileCurve,
     /// Root-mean-square distance in vol between the curve and the quotes used.
     pub rmse_vol: f64,
-    /// Indices of quotes left out of the fit as off-market, with their distance in vol.
+    /// Indices of quotes left out of the fit as off-market, with their signed distance
+    /// in vol (fitted smile minus quote: negative when the quote lies above the smile).
     pub excluded: Vec<(usize, f64)>,
     /// Lowest and highest quoted log-moneyness.
     pub quoted_range: (f64, f64),

@@ -1,0 +1,183 @@
+//! Charts and the overview page: `GET /v1/underlyings/{u}/latest/chart.svg`,
+//! `GET /v1/underlyings/{u}/history/chart.svg?param=..`, and `GET /` (plain HTML,
+//! CSS and a little script served by the binary; no build step, nothing external).
+
+use super::error::{ApiError, ProblemDetails};
+use super::handlers::query_params;
+use super::history::{history_item, HistoryItem};
+use super::AppState;
+use crate::charts::{parameter_history_svg, term_structure_svg, TermPoint};
+use crate::store::{HistoryQuery, Store};
+use axum::extract::rejection::QueryRejection;
+use axum::extract::{Path, Query, State};
+use axum::http::{header, HeaderValue, StatusCode};
+use axum::response::{Html, IntoResponse, Response};
+use chrono::{DateTime, Duration, Utc};
+use serde::Deserialize;
+use utoipa::IntoParams;
+
+/// Most snapshots drawn in a parameter history.
+pub const MAX_HISTORY_POINTS: u32 = 5000;
+
+/// The overview page.
+const OVERVIEW_HTML: &str = include_str!("overview.html");
+
+/// The term-structure points of a stored analysis.
+pub fn term_points(item: &HistoryItem) -> Vec<TermPoint> {
+    item.curve
+        .iter()
+        .map(|p| TermPoint {
+            tau: p.tau,
+            variance_swap: p.variance_swap,
+            gamma_swap: p.gamma_swap,
+            leverage_swap: p.leverage_swap,
+            forward_variance: p.forward_variance,
+            model_leverage_swap: p.model_leverage_swap,
+        })
+        .collect()
+}
+
+fn svg_response(svg: String, etag: Option<HeaderValue>) -> Response {
+    let mut response = (StatusCode::OK, svg).into_response();
+    let headers = response.headers_mut();
+    headers.insert(header::CONTENT_TYPE, HeaderValue::from_static("image/svg+xml"));
+    headers.insert(header::CACHE_CONTROL, HeaderValue::from_static("no-cache"));
+    if let Some(tag) = etag {
+        headers.insert(header::ETAG, tag);
+    }
+    response
+}
+
+fn chart_failed(e: crate::charts::ChartError) -> ApiError {
+    ApiError::Internal(e.to_string())
+}
+
+/// The latest term structures of an underlying as an SVG chart.
+#[utoipa::path(
+    get, path = "/v1/underlyings/{underlying}/latest/chart.svg", tag = "charts",
+    params(("underlying" = String, Path, description = "Underlying name")),
+    responses(
+        (status = 200, description = "Variance and gamma swap vols, forward vol, leverage swap with the model fit",
+         body = String, content_type = "image/svg+xml", headers(("ETag" = String, description = "Entity tag of the snapshot drawn"))),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn get_latest_chart(
+    State(state): State<AppState>,
+    Path(underlying): Path<String>,
+) -> Result<Response, ApiError> {
+    let record = state
+        .store()
+        .latest(&underlying)
+        .await
+        .map_err(|e| {
+            state.metrics().store_error("latest");
+            ApiError::from(e)
+        })?
+        .ok_or_else(|| ApiError::NotFound(format!("no snapshot of underlying {underlying:?}")))?;
+    let item = history_item(&record)?;
+    let title = format!("{underlying}  as of {}  (snapshot {})", item.as_of, item.id);
+    let svg = term_structure_svg(&title, &term_points(&item)).map_err(chart_failed)?;
+    Ok(svg_response(svg, HeaderValue::from_str(&format!("\"{}\"", record.id)).ok()))
+}
+
+/// Query of the parameter history chart.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct ParamChartQuery {
+    /// `hurst`, `rho_nu`, `mean_reversion` or `leverage_rmse`.
+    pub param: Option<String>,
+    /// Inclusive start of `as_of`, RFC 3339.
+    pub from: Option<String>,
+    /// Exclusive end of `as_of`, RFC 3339.
+    pub to: Option<String>,
+}
+
+fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<Utc>>, ApiError> {
+    text.map(|t| {
+        DateTime::parse_from_rfc3339(t)
+            .map(|d| d.with_timezone(&Utc))
+            .map_err(|e| ApiError::Parameter { name, message: format!("must be an RFC 3339 time ({e}), got {t:?}") })
+    })
+    .transpose()
+}
+
+/// A fitted parameter of an underlying through time as an SVG chart.
+#[utoipa::path(
+    get, path = "/v1/underlyings/{underlying}/history/chart.svg", tag = "charts",
+    params(("underlying" = String, Path, description = "Underlying name"), ParamChartQuery),
+    responses(
+        (status = 200, description = "The parameter against valuation time", body = String, content_type = "image/svg+xml"),
+        (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 404, description = "No fitted snapshot of this underlying in the range", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
+         headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
+    ),
+    security((), ("bearer" = []))
+)]
+pub async fn get_history_chart(
+    State(state): State<AppState>,
+    Path(underlying): Path<String>,
+    query: Result<Query<ParamChartQuery>, QueryRejection>,
+) -> Result<Response, ApiError> {
+    let query = query_params(query)?;
+    let param = query.param.as_deref().unwrap_or("hurst");
+    let pick: fn(&super::history::HistoryFit) -> Option<f64> = match param {
+        "hurst" => |f| f.hurst,
+        "rho_nu" => |f| f.rho_nu,
+        "mean_reversion" => |f| f.mean_reversion,
+        "leverage_rmse" => |f| f.leverage_rmse,
+        other => {
+            return Err(ApiError::Parameter {
+                name: "param",
+                message: format!("must be hurst, rho_nu, mean_reversion or leverage_rmse, got {other:?}"),
+            })
+        }
+    };
+    let history = HistoryQuery {
+        underlying: underlying.clone(),
+        from: parse_time("from", query.from.as_deref())?,
+        to: parse_time("to", query.to.as_deref())?,
+        after: None,
+        limit: MAX_HISTORY_POINTS,
+    };
+    let records = state.store().history(&history).await.map_err(|e| {
+        state.metrics().store_error("history");
+        ApiError::from(e)
+    })?;
+    let mut values = Vec::new();
+    for record in &records {
+        if let Some(v) = history_item(record)?.fit.as_ref().and_then(pick) {
+            values.push((record.as_of, v));
+        }
+    }
+    let Some(first) = values.first().map(|v| v.0) else {
+        return Err(ApiError::NotFound(format!("no fitted {param} for underlying {underlying:?} in the range")));
+    };
+    let hours: Vec<(f64, f64)> =
+        values.iter().map(|(t, v)| ((*t - first).num_milliseconds() as f64 / 3.6e6, *v)).collect();
+    let multi_day = values.last().is_some_and(|l| l.0 - first > Duration::hours(24));
+    let label = move |h: f64| {
+        let t = first + Duration::milliseconds((h * 3.6e6) as i64);
+        if multi_day {
+            t.format("%m-%d %H:%M").to_string()
+        } else {
+            t.format("%H:%M").to_string()
+        }
+    };
+    let title = format!("{underlying}: {param} through time ({} snapshots)", values.len());
+    let svg = parameter_history_svg(&title, param, &hours, &label).map_err(chart_failed)?;
+    Ok(svg_response(svg, None))
+}
+
+/// The overview page.
+#[utoipa::path(get, path = "/", tag = "charts",
+    responses((status = 200, description = "Overview page (HTML)", body = String, content_type = "text/html")))]
+pub async fn get_overview() -> Html<&'static str> {
+    Html(OVERVIEW_HTML)
+}
