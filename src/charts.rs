@@ -195,6 +195,8 @@ pub fn parameter_history_svg(
         let root = root.titled(title, ("sans-serif", 18)).map_err(drawing)?;
         let x = padded(points.iter().map(|p| p.0));
         let y = padded(points.iter().map(|p| p.1));
+        // Enough decimals that neighbouring ticks (about a tenth of the range apart) differ.
+        let decimals = (2.0 - ((y.end - y.start) / 10.0).log10().floor()).clamp(2.0, 8.0) as usize;
         let mut chart = ChartBuilder::on(&root)
             .margin(12)
             .x_label_area_size(40)
@@ -206,7 +208,7 @@ pub fn parameter_history_svg(
             .x_desc("valuation time (UTC)")
             .y_desc(parameter)
             .x_label_formatter(&|h| label_of_hours(*h))
-            .y_label_formatter(&|v| format!("{v:.4}"))
+            .y_label_formatter(&|v| format!("{v:.decimals$}"))
             .draw()
             .map_err(drawing)?;
         let style = ShapeStyle::from(&VARIANCE_COLOUR).stroke_width(2);
