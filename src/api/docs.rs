@@ -169,7 +169,7 @@ impl Modify for BearerSecurity {
     components(schemas(
         input::SnapshotDoc, input::SliceDoc, input::PointDoc, input::PriceDoc, input::FitDoc, input::FixDoc,
         input::SwapsDoc, input::SwapDoc, input::SmileMethodDoc, input::ModelDoc,
-        output::AnalysisDoc, output::CurveDoc, output::QualityDoc, output::SmileDoc, output::FitDoc,
+        output::AnalysisDoc, output::CurveDoc, output::QualityDoc, output::SmileDoc, output::FitResultDoc,
         output::ParamsDoc, output::ConvexityDoc,
         super::risk::ValuationRequest, valuation::PositionDoc, valuation::RealizedDoc, valuation::KindDoc,
         valuation::SideDoc, valuation::ClosesDoc, valuation::RealizedOutDoc, valuation::ValuationDoc,

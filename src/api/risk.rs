@@ -26,6 +26,7 @@ pub struct ValuationRequest {
     #[serde(default)]
     pub snapshot_id: Option<i64>,
     /// The positions.
+    #[serde(deserialize_with = "crate::wire::strict::objects")]
     pub positions: Vec<PositionDoc>,
 }
 

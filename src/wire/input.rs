@@ -22,12 +22,13 @@ pub struct SnapshotDoc {
     #[serde(default)]
     pub spot: Option<f64>,
     /// One entry per expiry.
+    #[serde(deserialize_with = "super::strict::objects")]
     pub slices: Vec<SliceDoc>,
     /// Smile method: `svi` (default) or `monotone`.
     #[serde(default)]
     pub smile: Option<SmileMethodDoc>,
     /// Model fit request; absent means a free rough Heston fit.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "super::strict::optional_object")]
     pub fit: Option<FitDoc>,
 }
 
@@ -48,10 +49,10 @@ pub struct SliceDoc {
     #[serde(default)]
     pub discount: Option<f64>,
     /// Implied vol quotes.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "super::strict::optional_objects")]
     pub points: Option<Vec<PointDoc>>,
     /// Discounted call/put mids.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "super::strict::optional_objects")]
     pub prices: Option<Vec<PriceDoc>>,
 }
 
@@ -115,7 +116,7 @@ pub struct FitDoc {
     #[serde(default)]
     pub model: Option<ModelDoc>,
     /// Parameters held fixed.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "super::strict::optional_object")]
     pub fix: Option<FixDoc>,
     /// Vol-of-vol for the convexity report.
     #[serde(default)]
@@ -149,9 +150,10 @@ pub struct SwapsDoc {
     #[serde(default)]
     pub spot: Option<f64>,
     /// One entry per expiry.
+    #[serde(deserialize_with = "super::strict::objects")]
     pub swaps: Vec<SwapDoc>,
     /// Fit request.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "super::strict::optional_object")]
     pub fit: Option<FitDoc>,
 }
 

@@ -6,6 +6,7 @@ pub mod csv_input;
 pub mod input;
 pub mod output;
 pub mod path;
+pub mod strict;
 pub mod valuation;
 
 pub use input::{parse_snapshot, parse_swaps, ValidSnapshot, ValidSwaps};

@@ -35,7 +35,7 @@ pub struct AnalysisDoc {
     pub curve: Vec<CurveDoc>,
     /// The model fit, unless the model was `none`.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub fit: Option<FitDoc>,
+    pub fit: Option<FitResultDoc>,
 }
 
 /// Swap levels at one expiry (annualised variance; vols are their square roots).
@@ -121,7 +121,7 @@ pub enum SmileDoc {
 
 /// The model fit.
 #[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
-pub struct FitDoc {
+pub struct FitResultDoc {
     /// `rough_heston` or `heston`.
     pub model: &'static str,
     /// Parameters.
@@ -190,8 +190,8 @@ fn vol_of(level: f64) -> Option<f64> {
 }
 
 /// The output form of a fit.
-pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitDoc {
-    FitDoc {
+pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitResultDoc {
+    FitResultDoc {
         model: match fit.model {
             ModelKind::RoughHeston => "rough_heston",
             ModelKind::Heston => "heston",

@@ -76,7 +76,7 @@ pub struct PositionDoc {
     /// `long` or `short`.
     pub side: SideDoc,
     /// Realized so far (or give `fixings`); may be omitted at inception.
-    #[serde(default)]
+    #[serde(default, deserialize_with = "super::strict::optional_object")]
     pub realized: Option<RealizedDoc>,
     /// Daily closes since `start`, the first at `start`.
     #[serde(default)]
@@ -88,6 +88,7 @@ pub struct PositionDoc {
 #[serde(deny_unknown_fields)]
 pub struct BookDoc {
     /// The positions.
+    #[serde(deserialize_with = "super::strict::objects")]
     pub positions: Vec<PositionDoc>,
 }
 
