@@ -123,3 +123,59 @@ proptest! {
         }
     }
 }
+
+/// Mutations of a valid document: a byte flipped, dropped or duplicated at random.
+fn mutated(base: &'static str) -> impl Strategy<Value = String> {
+    prop::collection::vec((0usize..base.len(), 0u8..3, any::<u8>()), 1..6).prop_map(move |edits| {
+        let mut bytes = base.as_bytes().to_vec();
+        for (at, kind, byte) in edits {
+            let at = at.min(bytes.len().saturating_sub(1));
+            match kind {
+                0 => bytes[at] = byte,
+                1 => {
+                    bytes.remove(at);
+                }
+                _ => bytes.insert(at, byte),
+            }
+        }
+        String::from_utf8_lossy(&bytes).into_owned()
+    })
+}
+
+const CSV_SNAPSHOT: &str = "underlying,as_of,tau,strike,vol,bid,ask,forward
+HERON,2026-11-30T15:30:00Z,0.5,80,0.26,0.25,0.27,100
+HERON,2026-11-30T15:30:00Z,0.5,100,0.2,,,100
+HERON,2026-11-30T15:30:00Z,0.5,120,0.18,,,100
+HERON,2026-11-30T15:30:00Z,1.0,80,0.25,,,101
+HERON,2026-11-30T15:30:00Z,1.0,100,0.21,,,101
+HERON,2026-11-30T15:30:00Z,1.0,120,0.19,,,101
+";
+
+const JSON_SNAPSHOT: &str = r#"{"underlying":"HERON","as_of":"2026-11-30T15:30:00Z","slices":[
+{"tau":0.5,"forward":100,"points":[{"strike":80,"vol":0.26},{"strike":100,"vol":0.2},{"strike":120,"vol":0.18}]},
+{"expiry":"2027-11-30T15:30:00Z","forward":101,"points":[{"strike":80,"vol":0.25},{"strike":100,"vol":0.21},{"strike":120,"vol":0.19}]}],
+"fit":{"model":"heston","fix":{"mean_reversion":1.0}}}"#;
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 400, ..ProptestConfig::default() })]
+
+    /// The snapshot parsers (JSON and CSV) and the analysis behind them return a value
+    /// or an error for any text, arbitrary or a mutation of a valid document.
+    #[test]
+    fn snapshot_parsers_never_panic_on_any_text(
+        noise in ".{0,300}",
+        json in mutated(JSON_SNAPSHOT),
+        csv in mutated(CSV_SNAPSHOT),
+    ) {
+        use logstrip::wire::csv_input::{parse_closes_csv, parse_snapshot_csv, CsvHeader};
+        for text in [&noise, &json, &csv] {
+            let _ = logstrip::wire::analyze_text(text);
+            let _ = parse_snapshot_csv(text, &CsvHeader::default());
+            let _ = parse_closes_csv(text);
+            let _ = parse_swaps(text);
+        }
+        if let Ok(snapshot) = parse_snapshot_csv(&csv, &CsvHeader::default()) {
+            let _ = logstrip::wire::analyze_valid(snapshot);
+        }
+    }
+}
