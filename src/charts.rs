@@ -1,6 +1,7 @@
 //! SVG charts (plotters): the term structures of one analysis, and a fit parameter
 //! through time. Numbers in, SVG text out; no HTTP or store types.
 
+use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -89,15 +90,14 @@ pub fn term_structure_svg(title: &str, points: &[TermPoint]) -> Result<String, C
     Ok(svg)
 }
 
-fn draw_vols(area: &DrawingArea<SVGBackend, Shift>, points: &[TermPoint], t_max: f64) -> Result<(), ChartError> {
-    let vs: Vec<(f64, f64)> = points.iter().map(|p| (p.tau, vol_percent(p.variance_swap))).collect();
-    let gs: Vec<(f64, f64)> = points.iter().map(|p| (p.tau, vol_percent(p.gamma_swap))).collect();
-    let fwd: Vec<(f64, f64)> = points
-        .iter()
-        .filter_map(|p| p.forward_variance.map(|f| (p.tau, vol_percent(f))))
-        .filter(|p| p.1.is_finite())
-        .collect();
-    let y = padded(vs.iter().chain(&gs).chain(&fwd).map(|p| p.1));
+/// A panel over time to expiry with its mesh drawn.
+fn term_panel<'a, 'b>(
+    area: &'a DrawingArea<SVGBackend<'b>, Shift>,
+    t_max: f64,
+    y: std::ops::Range<f64>,
+    y_desc: &str,
+    decimals: usize,
+) -> Result<ChartContext<'a, SVGBackend<'b>, Cartesian2d<RangedCoordf64, RangedCoordf64>>, ChartError> {
     let mut chart = ChartBuilder::on(area)
         .margin(12)
         .x_label_area_size(36)
@@ -107,10 +107,23 @@ fn draw_vols(area: &DrawingArea<SVGBackend, Shift>, points: &[TermPoint], t_max:
     chart
         .configure_mesh()
         .x_desc("time to expiry (years)")
-        .y_desc("annualised vol (%)")
-        .y_label_formatter(&|v| format!("{v:.1}"))
+        .y_desc(y_desc)
+        .y_label_formatter(&|v| format!("{v:.decimals$}"))
         .draw()
         .map_err(drawing)?;
+    Ok(chart)
+}
+
+fn draw_vols(area: &DrawingArea<SVGBackend, Shift>, points: &[TermPoint], t_max: f64) -> Result<(), ChartError> {
+    let vs: Vec<(f64, f64)> = points.iter().map(|p| (p.tau, vol_percent(p.variance_swap))).collect();
+    let gs: Vec<(f64, f64)> = points.iter().map(|p| (p.tau, vol_percent(p.gamma_swap))).collect();
+    let fwd: Vec<(f64, f64)> = points
+        .iter()
+        .filter_map(|p| p.forward_variance.map(|f| (p.tau, vol_percent(f))))
+        .filter(|p| p.1.is_finite())
+        .collect();
+    let y = padded(vs.iter().chain(&gs).chain(&fwd).map(|p| p.1));
+    let mut chart = term_panel(area, t_max, y, "annualised vol (%)", 1)?;
     let series = [
         ("variance swap vol", &vs, VARIANCE_COLOUR),
         ("gamma swap vol", &gs, GAMMA_COLOUR),
@@ -139,19 +152,7 @@ fn draw_leverage(area: &DrawingArea<SVGBackend, Shift>, points: &[TermPoint], t_
     let market: Vec<(f64, f64)> = points.iter().map(|p| (p.tau, bp(p.leverage_swap))).collect();
     let model: Vec<(f64, f64)> = points.iter().filter_map(|p| p.model_leverage_swap.map(|m| (p.tau, bp(m)))).collect();
     let y = padded(market.iter().chain(&model).map(|p| p.1).chain(std::iter::once(0.0)));
-    let mut chart = ChartBuilder::on(area)
-        .margin(12)
-        .x_label_area_size(36)
-        .y_label_area_size(64)
-        .build_cartesian_2d(0.0..t_max, y)
-        .map_err(drawing)?;
-    chart
-        .configure_mesh()
-        .x_desc("time to expiry (years)")
-        .y_desc("leverage swap (bp of variance)")
-        .y_label_formatter(&|v| format!("{v:.0}"))
-        .draw()
-        .map_err(drawing)?;
+    let mut chart = term_panel(area, t_max, y, "leverage swap (bp of variance)", 0)?;
     chart
         .draw_series(market.iter().map(|p| Circle::new(*p, 3, MARKET_COLOUR.filled())))
         .map_err(drawing)?
