@@ -2,7 +2,9 @@
 //! naming the columns. A CSV snapshot becomes the same [`SnapshotDoc`] as JSON and is
 //! validated the same way; every problem names its line and column.
 
-use super::input::{validate_snapshot, PointDoc, PriceDoc, SliceDoc, SnapshotDoc, ValidSnapshot};
+use super::input::{
+    too_many_expiries, validate_snapshot, PointDoc, PriceDoc, SliceDoc, SnapshotDoc, ValidSnapshot, MAX_EXPIRIES,
+};
 use super::path::{FieldPath, InputErrors, Problem, Segment};
 
 /// Columns a snapshot CSV may have.
@@ -259,6 +261,12 @@ fn snapshot_doc(text: &str, header: &CsvHeader) -> Result<(SnapshotDoc, Origins)
         problems.push(Problem {
             path: FieldPath::csv(1, Some("as_of")),
             message: "give an as_of column, or as_of as a flag or query parameter".into(),
+        });
+    }
+    if let Some(first_extra) = groups.get(MAX_EXPIRIES) {
+        problems.push(Problem {
+            path: FieldPath::csv(first_extra.first_line, Some(if col("expiry").is_some() { "expiry" } else { "tau" })),
+            message: too_many_expiries(groups.len()),
         });
     }
     if !problems.is_empty() {
