@@ -85,6 +85,16 @@ pub const ACTIVE_BOUND_FRACTION: f64 = 1e-6;
 /// a gain is rounding.
 pub const SVI_OUTER_COST_REL_TOL: f64 = 1e-12;
 
+/// The SVI outer search also stops when the undamped Gauss–Newton step from the current
+/// point predicts a gain of at most this fraction of the cost (the model fit's stop,
+/// [`CALIBRATION_COST_REL_TOL`]): the parameters are then within about `sqrt(1e-9) =
+/// 3e-5` of their own standard errors of the minimum. A damped step's actual gain cannot
+/// serve for this (it is small when the step is short, not only near the minimum).
+/// Measured on the demo snapshot against the accepted-step stop alone: variance swaps
+/// move by at most 3.2e-7 relative and leverage swaps by 1.7e-8 absolute (quote
+/// noise moves them by 1e-3 and 1e-5), for 19% fewer instructions in the smile fits.
+pub const SVI_OUTER_PREDICTED_GAIN_TOL: f64 = 1e-9;
+
 /// The SVI outer search also stops when an accepted step moves `m` by less than this
 /// fraction of the quoted range and `ln sigma` by less than this (absolute): the
 /// parameters then agree to about 1e-10 relative, far inside the quotes' noise.

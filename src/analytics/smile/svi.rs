@@ -11,7 +11,8 @@ use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuot
 use crate::analytics::stats::median;
 use crate::analytics::tolerances::{
     DEFAULT_HALF_SPREAD_VOL, MAX_WING_SLOPE, OUTLIER_FLOOR_VOL, OUTLIER_SIGMAS, SVI_OUTER_COST_REL_TOL,
-    SVI_OUTER_MAX_DAMPING_TRIES, SVI_OUTER_MAX_ITERATIONS, SVI_OUTER_STEP_TOL, SVI_WARM_START_ACCEPT_SPREADS,
+    SVI_OUTER_MAX_DAMPING_TRIES, SVI_OUTER_MAX_ITERATIONS, SVI_OUTER_PREDICTED_GAIN_TOL, SVI_OUTER_STEP_TOL,
+    SVI_WARM_START_ACCEPT_SPREADS,
 };
 
 /// Ridge on the wing slopes `s_L^2 + s_R^2`, in units where a slope `s` costs like
@@ -467,6 +468,22 @@ impl InnerData<'_> {
         for _ in 0..SVI_OUTER_MAX_ITERATIONS {
             let (gradient, hessian) = self.outer_derivatives(&point);
             let diag_floor = 1e-12 * hessian[0][0].max(hessian[1][1]).max(1e-300);
+            // The stop of the model fit (`levenberg.rs`): when even the undamped step, the
+            // most the Gauss–Newton model offers from here, would lower the cost by at most
+            // SVI_OUTER_PREDICTED_GAIN_TOL of it, the search ends. With the cost
+            // `sum omega r^2` modelled as `cost + 2 g.s + s.H.s` (half gradient `g`,
+            // Gauss–Newton matrix `H`), that step solves `H s = -g` and gains `-g.s`.
+            let mut undamped = hessian;
+            for r in 0..2 {
+                undamped[r][r] += diag_floor;
+            }
+            let as_3x3 = |m: [[f64; 2]; 2]| [[m[0][0], m[0][1], 0.0], [m[1][0], m[1][1], 0.0], [0.0, 0.0, 0.0]];
+            if let Some(step) = solve_small(2, as_3x3(undamped), [-gradient[0], -gradient[1], 0.0]) {
+                let predicted_gain = -(gradient[0] * step[0] + gradient[1] * step[1]);
+                if predicted_gain >= 0.0 && predicted_gain <= SVI_OUTER_PREDICTED_GAIN_TOL * point.cost {
+                    return point;
+                }
+            }
             let mut accepted = None;
             for _ in 0..SVI_OUTER_MAX_DAMPING_TRIES {
                 let mut matrix = [[0.0; 3]; 3];
