@@ -74,8 +74,9 @@ fn convexity_with_many_expiries_and_a_sharp_kernel_took_seconds() {
 /// The fuzzer's input itself (decoded from its artifact `slow-unit-36e48967` by the
 /// `analyze_numbers` target's reader; the leverage levels rounded to 4 digits): 23
 /// expiries to 5.5 years, all three parameters fixed, mean reversion 442 (outside the
-/// bounds the input documents enforce, which `fit_leverage` does not re-check), negative
-/// uncertainties, `nu = 0.85`. It must come back with finite numbers.
+/// bounds the input documents enforce), negative uncertainties, `nu = 0.85`.
+/// `fit_leverage` now refuses the out-of-bounds fixed value, naming it; at the largest
+/// mean reversion allowed (20) the same input comes back with finite numbers.
 #[test]
 fn fuzzed_fit_with_mean_reversion_442_and_vol_of_vol_took_seven_seconds() {
     let taus = vec![
@@ -142,13 +143,18 @@ fn fuzzed_fit_with_mean_reversion_442_and_vol_of_vol_took_seven_seconds() {
         mean_reversion: Some(442.435_339_894_712_74),
         nu: Some(0.847_568_093_385_214_1),
     };
+    let refused = fit_leverage(&target, &spec);
+    assert_eq!(refused.status, FitStatus::Failed);
+    let message = refused.message.unwrap_or_default();
+    assert!(message.contains("mean_reversion") && message.contains("442"), "{message}");
+
+    let spec = FitSpec { mean_reversion: Some(20.0), ..spec };
     let fit = fit_leverage(&target, &spec);
     assert_ne!(fit.status, FitStatus::Failed, "{:?}", fit.message);
     assert!(fit.model_leverage_swap.iter().all(|v| v.is_finite()), "{:?}", fit.model_leverage_swap);
-    if let Some(points) = &fit.convexity {
-        for p in points {
-            assert!(p.realized_variance_stdev.is_finite() && p.volatility_swap.is_finite(), "{p:?}");
-        }
+    let points = fit.convexity.expect("nu given: convexity reported");
+    for p in points {
+        assert!(p.realized_variance_stdev.is_finite() && p.volatility_swap.is_finite(), "{p:?}");
     }
 }
 

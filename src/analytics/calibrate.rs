@@ -308,6 +308,18 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         rho_nu: spec.rho_nu.unwrap_or(f64::NAN),
         mean_reversion: spec.mean_reversion.unwrap_or(f64::NAN),
     };
+    // Fixed parameters must lie in the same bounds as free ones: the model is only
+    // evaluated (and its cost only bounded) there. The input documents check this
+    // first; a library caller gets a failed fit naming the parameter. (Fuzzing reached
+    // the model with a fixed mean reversion of 442, `tests/regressions.rs`.)
+    for (name, value) in ParamName::ALL.iter().zip([spec.hurst, spec.rho_nu, spec.mean_reversion]) {
+        if let (Some(v), false) = (value, model == ModelKind::Heston && *name == ParamName::Hurst) {
+            let (lo, hi) = name.bounds();
+            if !(v >= lo && v <= hi) {
+                return failed(format!("fixed {} must lie in [{lo}, {hi}], got {v}", name.as_str()), nan_params);
+            }
+        }
+    }
     let n = target.taus.len();
     if n < free.len().max(1) {
         return failed(format!("{} free parameter(s) need at least as many expiries, got {n}", free.len()), nan_params);
