@@ -163,3 +163,32 @@ async fn backfill_posts_a_directory_skips_on_rerun_and_lists_failures() {
         server.client.get(server.url("/v1/underlyings/KESTREL50/history")).send().await.unwrap().json().await.unwrap();
     assert_eq!(history["items"].as_array().unwrap().len(), 4, "3 JSON snapshots and the CSV one");
 }
+
+/// Found by schemathesis once the OpenAPI parameters had examples: a snapshot posted as
+/// CSV comes back under `?include=input` as the CSV text (a JSON string), which the
+/// schema, allowing only a snapshot object, rejected. The input stays as sent; the
+/// schema (`StoredInputDoc`) now allows the string.
+#[tokio::test]
+async fn a_csv_snapshot_with_include_input_returned_a_string_the_schema_did_not_allow() {
+    let server = start_sqlite(open_settings()).await;
+    let stored = post_csv(&server, "/v1/snapshots", CSV_SNAPSHOT_EXAMPLE).await;
+    assert_eq!(stored.status(), StatusCode::CREATED);
+    let id = stored.json::<Value>().await.unwrap()["id"].as_i64().expect("id");
+    let with_input: Value = server
+        .client
+        .get(server.url(&format!("/v1/snapshots/{id}?include=input")))
+        .send()
+        .await
+        .expect("request")
+        .json()
+        .await
+        .expect("JSON");
+    assert_eq!(with_input["input"].as_str(), Some(CSV_SNAPSHOT_EXAMPLE), "{}", with_input["input"]);
+
+    let text =
+        std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/openapi/logstrip.json")).expect("committed");
+    let doc: Value = serde_json::from_str(&text).expect("JSON");
+    let variants = doc["components"]["schemas"]["StoredInputDoc"]["oneOf"].as_array().expect("oneOf").clone();
+    assert!(variants.iter().any(|v| v["type"] == "string"), "{variants:?}");
+    assert!(variants.iter().any(|v| v["$ref"] == "#/components/schemas/SnapshotDoc"), "{variants:?}");
+}

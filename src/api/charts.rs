@@ -55,7 +55,7 @@ fn chart_failed(e: crate::charts::ChartError) -> ApiError {
 /// The latest term structures of an underlying as an SVG chart.
 #[utoipa::path(
     get, path = "/v1/underlyings/{underlying}/latest/chart.svg", tag = "charts",
-    params(("underlying" = String, Path, description = "Underlying name")),
+    params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50")),
     responses(
         (status = 200, description = "Variance and gamma swap vols, forward vol, leverage swap with the model fit",
          body = String, content_type = "image/svg+xml", headers(("ETag" = String, description = "Entity tag of the snapshot drawn"))),
@@ -90,10 +90,13 @@ pub async fn get_latest_chart(
 #[into_params(parameter_in = Query)]
 pub struct ParamChartQuery {
     /// `hurst`, `rho_nu`, `mean_reversion` or `leverage_rmse`.
+    #[param(example = "hurst")]
     pub param: Option<String>,
     /// Inclusive start of `as_of`, RFC 3339.
+    #[param(example = "2026-11-30T09:00:00Z")]
     pub from: Option<String>,
     /// Exclusive end of `as_of`, RFC 3339.
+    #[param(example = "2026-12-01T00:00:00Z")]
     pub to: Option<String>,
 }
 
@@ -109,7 +112,7 @@ fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<
 /// A fitted parameter of an underlying through time as an SVG chart.
 #[utoipa::path(
     get, path = "/v1/underlyings/{underlying}/history/chart.svg", tag = "charts",
-    params(("underlying" = String, Path, description = "Underlying name"), ParamChartQuery),
+    params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50"), ParamChartQuery),
     responses(
         (status = 200, description = "The parameter against valuation time", body = String, content_type = "image/svg+xml"),
         (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),

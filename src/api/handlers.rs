@@ -177,8 +177,10 @@ pub async fn post_snapshot(State(state): State<AppState>, body: SnapshotText) ->
 #[into_params(parameter_in = Query)]
 pub struct CsvParams {
     /// Underlying of a CSV body without an `underlying` column.
+    #[param(example = "KESTREL50")]
     pub underlying: Option<String>,
     /// Valuation time (RFC 3339) of a CSV body without an `as_of` column.
+    #[param(example = "2026-11-30T15:30:00Z")]
     pub as_of: Option<String>,
 }
 
@@ -240,13 +242,14 @@ pub async fn post_fit(State(state): State<AppState>, JsonText(text): JsonText) -
 #[into_params(parameter_in = Query)]
 pub struct SnapshotQuery {
     /// `input` adds the original snapshot to the response.
+    #[param(example = "input")]
     pub include: Option<String>,
 }
 
 /// A stored analysis.
 #[utoipa::path(
     get, path = "/v1/snapshots/{id}", tag = "snapshots",
-    params(("id" = i64, Path, description = "Snapshot id"), SnapshotQuery),
+    params(("id" = i64, Path, description = "Snapshot id", example = 1), SnapshotQuery),
     responses(
         (status = 200, description = "The stored analysis", body = StoredAnalysisDoc,
          headers(("ETag" = String, description = "Entity tag of the snapshot"))),
@@ -304,6 +307,7 @@ pub async fn get_underlyings(State(state): State<AppState>) -> Result<Response, 
 pub struct LatestQuery {
     /// With `If-None-Match` naming the current latest: hold the request up to this many
     /// seconds (0 to 60) until a newer snapshot is stored.
+    #[param(example = "1")]
     pub wait: Option<String>,
 }
 
@@ -326,7 +330,7 @@ fn parse_wait(wait: Option<&str>) -> Result<Duration, ApiError> {
 #[utoipa::path(
     get, path = "/v1/underlyings/{underlying}/latest", tag = "underlyings",
     params(
-        ("underlying" = String, Path, description = "Underlying name"),
+        ("underlying" = String, Path, description = "Underlying name", example = "KESTREL50"),
         ("If-None-Match" = Option<String>, Header, description = "ETag of the analysis the client has"),
         LatestQuery
     ),

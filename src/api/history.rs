@@ -25,14 +25,18 @@ pub const MAX_LIMIT: u32 = 1000;
 #[into_params(parameter_in = Query)]
 pub struct HistoryParams {
     /// Inclusive start of `as_of`, RFC 3339.
+    #[param(example = "2026-11-30T09:00:00Z")]
     pub from: Option<String>,
     /// Exclusive end of `as_of`, RFC 3339.
+    #[param(example = "2026-12-01T00:00:00Z")]
     pub to: Option<String>,
     /// Snapshots per page, 1 to 1000 (default 100).
+    #[param(example = "100")]
     pub limit: Option<String>,
     /// `next_cursor` of the previous page.
     pub cursor: Option<String>,
     /// `json` (default) or `csv`; `Accept: text/csv` also selects CSV.
+    #[param(example = "json")]
     pub format: Option<String>,
 }
 
@@ -277,7 +281,7 @@ fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
 #[utoipa::path(
     get, path = "/v1/underlyings/{underlying}/history", tag = "underlyings",
     params(
-        ("underlying" = String, Path, description = "Underlying name"),
+        ("underlying" = String, Path, description = "Underlying name", example = "KESTREL50"),
         ("Accept" = Option<String>, Header, description = "`text/csv` for CSV"),
         HistoryParams
     ),
