@@ -151,6 +151,35 @@ impl Modify for BearerSecurity {
             "bearer",
             SecurityScheme::Http(HttpBuilder::new().scheme(HttpAuthScheme::Bearer).build()),
         );
+        add_header_examples(openapi);
+    }
+}
+
+/// An example value for each response header (the path attributes of utoipa take a
+/// type and a description only, so the examples go on the headers' schemas here).
+fn add_header_examples(openapi: &mut utoipa::openapi::OpenApi) {
+    use utoipa::openapi::{schema::Schema, RefOr};
+    let example = |name: &str| -> Option<Value> {
+        match name {
+            "ETag" => Some(json!("\"39\"")),
+            "Location" => Some(json!("/v1/snapshots/39")),
+            "Retry-After" => Some(json!(super::error::RETRY_AFTER_SECONDS)),
+            "Link" => Some(json!("</v1/underlyings/KESTREL50/history?limit=100&cursor=MzkK>; rel=\"next\"")),
+            _ => None,
+        }
+    };
+    for item in openapi.paths.paths.values_mut() {
+        for operation in [&mut item.get, &mut item.post].into_iter().flatten() {
+            for response in operation.responses.responses.values_mut() {
+                let RefOr::T(response) = response else { continue };
+                for (name, header) in response.headers.iter_mut() {
+                    let (RefOr::T(header), Some(value)) = (header, example(name)) else { continue };
+                    if let Some(RefOr::T(Schema::Object(schema))) = header.schema.as_mut() {
+                        schema.examples = vec![value];
+                    }
+                }
+            }
+        }
     }
 }
 
