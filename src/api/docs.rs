@@ -152,6 +152,38 @@ impl Modify for BearerSecurity {
             SecurityScheme::Http(HttpBuilder::new().scheme(HttpAuthScheme::Bearer).build()),
         );
         add_header_examples(openapi);
+        add_response_examples(openapi);
+    }
+}
+
+/// Example response bodies that utoipa cannot take from a schema: real outputs for the
+/// demo data (excerpts: one position, two vega buckets, two expiries), kept under
+/// `openapi/examples/` and regenerated as DEVELOPERS.md says.
+fn add_response_examples(openapi: &mut utoipa::openapi::OpenApi) {
+    use utoipa::openapi::RefOr;
+    let json_example = |text: &str| serde_json::from_str::<Value>(text).ok();
+    let examples: [(&str, &str, Option<Value>); 4] = [
+        ("/v1/realized", "application/json", json_example(include_str!("../../openapi/examples/realized.json"))),
+        ("/v1/valuations", "application/json", json_example(include_str!("../../openapi/examples/valuation.json"))),
+        (
+            "/v1/underlyings/{underlying}/history",
+            "application/json",
+            json_example(include_str!("../../openapi/examples/history-page.json")),
+        ),
+        (
+            "/v1/underlyings/{underlying}/history",
+            "text/csv",
+            Some(Value::String(include_str!("../../openapi/examples/history.csv").to_string())),
+        ),
+    ];
+    for (path, media_type, example) in examples {
+        let Some(item) = openapi.paths.paths.get_mut(path) else { continue };
+        for operation in [&mut item.get, &mut item.post].into_iter().flatten() {
+            let Some(RefOr::T(ok)) = operation.responses.responses.get_mut("200") else { continue };
+            if let Some(RefOr::T(content)) = ok.content.get_mut(media_type) {
+                content.example = example.clone();
+            }
+        }
     }
 }
 
