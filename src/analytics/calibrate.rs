@@ -568,12 +568,14 @@ pub fn forward_variances(taus: &[f64], variance_swap: &[f64]) -> Option<Vec<f64>
 /// (Brockhaus & Long 2000, "Volatility swaps made simple", Risk).
 ///
 /// With `xi` piecewise constant the variance needs `G(t) = Int_0^t K(u)^2 du` at every
-/// expiry gap `T_i - T_j` and `T_i - T_{j-1}`. `G` is integrated once, cumulatively, over
-/// the sorted distinct gaps (one Gauss–Kronrod panel set per step between consecutive
-/// gaps), with one Mittag-Leffler evaluator for `(a, a + 1)`: the cost grows with the
-/// number of distinct gaps, not with gaps times the kernel's sharpness. (Integrating
-/// `[0, gap]` afresh for each gap, with a new evaluator per kernel value, took 7.5 s for
-/// 35 expiries at `lambda = 20`; found by fuzzing, see `tests/regressions.rs`.)
+/// expiry gap `T_i - T_{j-1}` (and at `T_i - T_j`, the same gaps one `j` later, or zero).
+/// `G` is integrated once, cumulatively, over the curve's sorted distinct gaps
+/// ([`LeverageCurve::distinct_gaps`]; one Gauss–Kronrod panel set per step between
+/// consecutive gaps), with one Mittag-Leffler evaluator for `(a, a + 1)`: the cost grows
+/// with the number of distinct gaps, not with gaps times the kernel's sharpness.
+/// (Integrating `[0, gap]` afresh for each gap, with a new evaluator per kernel value,
+/// took 7.5 s for 35 expiries at `lambda = 20`; found by fuzzing, see
+/// `tests/regressions.rs`.)
 fn convexity(curve: &LeverageCurve, vs: &[f64], p: &LeverageParams, nu: f64) -> Option<Vec<ConvexityPoint>> {
     let a = p.hurst + 0.5;
     let lambda = p.mean_reversion;
@@ -588,39 +590,25 @@ fn convexity(curve: &LeverageCurve, vs: &[f64], p: &LeverageParams, nu: f64) -> 
     };
     let taus = curve.taus();
     let xi = curve.forward_variances();
-    // Every gap the sum below asks for, sorted and without repeats.
-    let mut gaps: Vec<f64> = Vec::with_capacity(taus.len() * (taus.len() + 3) / 2);
-    for i in 0..taus.len() {
-        gaps.push(taus[i]);
-        gaps.extend(taus[..i].iter().map(|&t| taus[i] - t).filter(|&gap| gap > 0.0));
-    }
-    gaps.sort_by(f64::total_cmp);
-    gaps.dedup();
     // The step integrals are summed into G, so each needs the same absolute accuracy as
     // the total: relative 1e-12 of its own size is at least as strict. 2,000 evaluations a
     // step bound the work when the kernel is sharp (large lambda).
     let tol = QuadratureTolerance { relative: 1e-12, absolute: 1e-300, max_evaluations: 2000 };
-    let mut g_at_gap = Vec::with_capacity(gaps.len());
+    let mut g_at_gap = Vec::with_capacity(curve.distinct_gaps().len());
     let (mut total, mut from) = (0.0, 0.0);
-    for &gap in &gaps {
+    for &gap in curve.distinct_gaps() {
         total += integrate(kernel_sq, &[from, gap], tol).value[0];
         g_at_gap.push(total);
         from = gap;
     }
-    // The gaps are recomputed below by the same expressions, so they are found exactly.
-    let g = |t: f64| -> f64 {
-        if t <= 0.0 {
-            return 0.0;
-        }
-        gaps.binary_search_by(|probe| probe.total_cmp(&t)).map_or(f64::NAN, |k| g_at_gap[k])
-    };
     let mut out = Vec::with_capacity(taus.len());
     for i in 0..taus.len() {
         let mut var_total = 0.0;
         for j in 0..=i {
-            let hi_gap = if j == 0 { taus[i] } else { taus[i] - taus[j - 1] };
-            let lo_gap = taus[i] - taus[j];
-            var_total += xi[j].max(0.0) * (g(hi_gap) - g(lo_gap));
+            let g_hi = g_at_gap[curve.gap_index(i, j)];
+            // T_i - T_j is the gap of (i, j + 1); zero for j = i
+            let g_lo = if j < i { g_at_gap[curve.gap_index(i, j + 1)] } else { 0.0 };
+            var_total += xi[j].max(0.0) * (g_hi - g_lo);
         }
         let t = taus[i];
         let var_rv = var_total / (t * t);

@@ -59,8 +59,6 @@ pub struct LeverageCurve {
     ln_gaps: Vec<f64>,
     /// `gap_of_pair[i * (i + 1) / 2 + j]`: the index in `gaps` of `T_i - T_{j-1}`.
     gap_of_pair: Vec<u32>,
-    /// Gap indices sorted by gap size (so by `|z| = |mu| t^a` for any `a`, `mu`).
-    order: Vec<usize>,
     /// `w_0 = xi_0`, `w_j = xi_j - xi_{j-1}`: weights of `f(T_i - T_{j-1})` in [`Self::assemble`].
     weights: Vec<f64>,
     /// Series evaluators of `E_{a,a+2}` for the last few `a`: building one costs a
@@ -377,21 +375,19 @@ const HORNER_BLOCK: usize = 8;
 /// value evaluation (35 expiries) took 8.3 us against 8.9 us with 8 (minimum of 50 x 200).
 const HORNER_BLOCK_SINGLE: usize = 16;
 
-/// `out[g] = sum_k c_k z[g]^k` for all `g` by Horner's rule, over blocks of `HORNER_BLOCK_SINGLE`
-/// arguments taken in the order `order` (gaps by size, so a block's arguments have similar
-/// `|z|`): each block keeps only the terms its largest `|z|` needs for the absolute tolerance
-/// `tol` (see [`terms_needed`]), and its chains are independent and stay in registers.
-fn horner_many(c: &[f64], tol: f64, z: &[f64], order: &[usize], out: &mut Vec<f64>) {
+/// `out[g] = sum_k c_k z[g]^k` for all `g` by Horner's rule, over consecutive blocks of
+/// `HORNER_BLOCK_SINGLE` arguments (the gaps are ascending, so a block's arguments have
+/// similar `|z|`): each block keeps only the terms its largest `|z|` needs for the absolute
+/// tolerance `tol` (see [`terms_needed`]), and its chains are independent and stay in
+/// registers.
+fn horner_many(c: &[f64], tol: f64, z: &[f64], out: &mut Vec<f64>) {
     out.clear();
     out.resize(z.len(), 0.0);
     let mut counter = TermCounter::new(c, tol);
-    for block in order.chunks(HORNER_BLOCK_SINGLE) {
+    for (block, out_block) in z.chunks(HORNER_BLOCK_SINGLE).zip(out.chunks_mut(HORNER_BLOCK_SINGLE)) {
         let mut zz = [0.0; HORNER_BLOCK_SINGLE];
-        let mut zb = 0.0_f64;
-        for (slot, &g) in zz.iter_mut().zip(block) {
-            *slot = z[g];
-            zb = zb.max(z[g].abs());
-        }
+        zz[..block.len()].copy_from_slice(block);
+        let zb = block.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
         let n = counter.at(zb);
         let mut acc = [0.0; HORNER_BLOCK_SINGLE];
         for &ck in c[..n].iter().rev() {
@@ -399,9 +395,7 @@ fn horner_many(c: &[f64], tol: f64, z: &[f64], order: &[usize], out: &mut Vec<f6
                 acc[i] = acc[i] * zz[i] + ck;
             }
         }
-        for (&v, &g) in acc.iter().zip(block) {
-            out[g] = v;
-        }
+        out_block.copy_from_slice(&acc[..block.len()]);
     }
 }
 
@@ -411,7 +405,6 @@ fn horner_many2(
     (c1, tol1): (&[f64], f64),
     (c2, tol2): (&[f64], f64),
     z: &[f64],
-    order: &[usize],
     out1: &mut Vec<f64>,
     out2: &mut Vec<f64>,
 ) {
@@ -424,13 +417,10 @@ fn horner_many2(
     out2.resize(z.len(), 0.0);
     let mut counter1 = TermCounter::new(c1, tol1);
     let mut counter2 = TermCounter::new(c2, tol2);
-    for block in order.chunks(HORNER_BLOCK) {
+    for (start, block) in (0..).step_by(HORNER_BLOCK).zip(z.chunks(HORNER_BLOCK)) {
         let mut zz = [0.0; HORNER_BLOCK];
-        let mut zb = 0.0_f64;
-        for (slot, &g) in zz.iter_mut().zip(block) {
-            *slot = z[g];
-            zb = zb.max(z[g].abs());
-        }
+        zz[..block.len()].copy_from_slice(block);
+        let zb = block.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
         let n = counter1.at(zb).max(counter2.at(zb));
         let mut a1 = [0.0; HORNER_BLOCK];
         let mut a2 = [0.0; HORNER_BLOCK];
@@ -440,10 +430,9 @@ fn horner_many2(
                 a2[i] = a2[i] * zz[i] + k2;
             }
         }
-        for ((&v1, &v2), &g) in a1.iter().zip(&a2).zip(block) {
-            out1[g] = v1;
-            out2[g] = v2;
-        }
+        let end = start + block.len();
+        out1[start..end].copy_from_slice(&a1[..block.len()]);
+        out2[start..end].copy_from_slice(&a2[..block.len()]);
     }
 }
 
@@ -484,15 +473,12 @@ impl LeverageCurve {
         let (gaps, gap_of_pair) = distinct_gaps(&pair_gaps);
         let ln_gaps: Vec<f64> = gaps.iter().map(|g| g.ln()).collect();
         let weights = (0..n).map(|j| if j == 0 { xi[0] } else { xi[j] - xi[j - 1] }).collect();
-        // `gaps` is ascending already
-        let order: Vec<usize> = (0..gaps.len()).collect();
         Ok(Self {
             taus: taus.to_vec(),
             xi: xi.to_vec(),
             gaps,
             ln_gaps,
             gap_of_pair,
-            order,
             weights,
             series_cache: RefCell::new(Vec::new()),
             phi_cache: RefCell::new(Vec::new()),
@@ -508,6 +494,17 @@ impl LeverageCurve {
     /// Forward variances per period.
     pub fn forward_variances(&self) -> &[f64] {
         &self.xi
+    }
+
+    /// The distinct expiry gaps `T_i - T_{j-1}` (years, ascending; see the field docs).
+    pub(crate) fn distinct_gaps(&self) -> &[f64] {
+        &self.gaps
+    }
+
+    /// Index in [`distinct_gaps`](Self::distinct_gaps) of `T_i - T_{j-1}` (`j <= i`,
+    /// `T_{-1} = 0`).
+    pub(crate) fn gap_index(&self, i: usize, j: usize) -> usize {
+        self.gap_of_pair[i * (i + 1) / 2 + j] as usize
     }
 
     /// The cached series evaluator of `E_{alpha,alpha+2}` (robust outside the series radius).
@@ -582,7 +579,7 @@ impl LeverageCurve {
             let series = Self::phi_series(&mut cache, alpha);
             let radius = match series.plan_value(z_max, negative, accuracy) {
                 Some((r, n, tol)) => {
-                    horner_many(&series.coeffs[..n], tol, &out.z, &self.order, &mut out.e);
+                    horner_many(&series.coeffs[..n], tol, &out.z, &mut out.e);
                     r
                 }
                 None => {
@@ -615,7 +612,6 @@ impl LeverageCurve {
                     (&series.dcoeffs[..n_deriv], tol_deriv),
                     (&series.psi_coeffs[..n_psi], tol_psi),
                     &out.z,
-                    &self.order,
                     &mut out.d_mu,
                     &mut out.d_alpha,
                 );

@@ -473,12 +473,18 @@ impl InnerData<'_> {
             // SVI_OUTER_PREDICTED_GAIN_TOL of it, the search ends. With the cost
             // `sum omega r^2` modelled as `cost + 2 g.s + s.H.s` (half gradient `g`,
             // Gauss–Newton matrix `H`), that step solves `H s = -g` and gains `-g.s`.
-            let mut undamped = hessian;
-            for r in 0..2 {
-                undamped[r][r] += diag_floor;
-            }
-            let as_3x3 = |m: [[f64; 2]; 2]| [[m[0][0], m[0][1], 0.0], [m[1][0], m[1][1], 0.0], [0.0, 0.0, 0.0]];
-            if let Some(step) = solve_small(2, as_3x3(undamped), [-gradient[0], -gradient[1], 0.0]) {
+            // The step `(H + D) s = -g` for a diagonal `D`.
+            let step_with = |diagonal: [f64; 2]| {
+                let mut matrix = [[0.0; 3]; 3];
+                for r in 0..2 {
+                    for c in 0..2 {
+                        matrix[r][c] = hessian[r][c];
+                    }
+                    matrix[r][r] += diagonal[r];
+                }
+                solve_small(2, matrix, [-gradient[0], -gradient[1], 0.0])
+            };
+            if let Some(step) = step_with([diag_floor; 2]) {
                 let predicted_gain = -(gradient[0] * step[0] + gradient[1] * step[1]);
                 if predicted_gain >= 0.0 && predicted_gain <= SVI_OUTER_PREDICTED_GAIN_TOL * point.cost {
                     return point;
@@ -486,14 +492,8 @@ impl InnerData<'_> {
             }
             let mut accepted = None;
             for _ in 0..SVI_OUTER_MAX_DAMPING_TRIES {
-                let mut matrix = [[0.0; 3]; 3];
-                for r in 0..2 {
-                    for c in 0..2 {
-                        matrix[r][c] = hessian[r][c];
-                    }
-                    matrix[r][r] += damping * hessian[r][r].max(diag_floor);
-                }
-                let Some(step) = solve_small(2, matrix, [-gradient[0], -gradient[1], 0.0]) else {
+                let damped = [0, 1].map(|r| damping * hessian[r][r].max(diag_floor));
+                let Some(step) = step_with(damped) else {
                     damping *= 10.0;
                     continue;
                 };
