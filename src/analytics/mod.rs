@@ -10,6 +10,7 @@
 pub mod analysis;
 pub mod black;
 pub mod calibrate;
+pub mod kronrod_table;
 pub mod levenberg;
 pub mod models;
 pub mod quadrature;

@@ -8,7 +8,8 @@
 //! `LS = (2/tau) Int otm(k) (1 - e^-k) dk`, so that it does not cancel.
 
 use super::black::mirrored_call;
-use super::quadrature::{integrate, QuadratureTolerance};
+use super::kronrod_table::GAUSS_KRONROD_21;
+use super::quadrature::{integrate_with, QuadratureTolerance};
 use super::smile::SmileShape;
 use super::tolerances::{
     MAX_ABS_LOG_MONEYNESS, OTM_PRICE_CUTOFF, REPLICATION_ABS_TOL, REPLICATION_MAX_EVALUATIONS, REPLICATION_REL_TOL,
@@ -43,6 +44,18 @@ pub struct Replication {
     pub evaluations: usize,
 }
 
+/// Growth factor of the steps of the wing walk, whose points become the wings' first
+/// panels. Measured on the demo snapshot (35 smiles, 10/21-point Gauss–Kronrod, the
+/// error of each level against a 1e-16 reference): growth 2.5 from a first step of two
+/// ATM total deviations needs 298 evaluations per smile against 336 for the earlier
+/// 7/15-point rule with growth 1.6, with the levels within 1e-15 relative of the
+/// reference either way.
+const WING_STEP_GROWTH: f64 = 2.5;
+
+/// First step of the wing walk, in units of the total deviation `sqrt(w)` at the end
+/// of the quoted range (see [`WING_STEP_GROWTH`]).
+const WING_FIRST_STEP_DEVIATIONS: f64 = 2.0;
+
 /// Walks outward from `start` in growing steps until the out-of-the-money price
 /// (and, on the put side, the put in units of the strike) is below the cutoff;
 /// returns the visited points (outward order) and whether the cutoff was reached.
@@ -62,20 +75,20 @@ fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, fi
         if mirrored_call(k, curve.total_variance(k)) < OTM_PRICE_CUTOFF {
             return (points, true);
         }
-        step *= 1.6;
+        step *= WING_STEP_GROWTH;
     }
 }
 
 /// From this `|k|` on, the leverage weight `1 - e^-k` is computed as written: the
 /// difference then loses at most a factor `e^0.5 / (e^0.5 - 1) < 2.6` in relative
-/// accuracy (a few ulps), and the `expm1` call is saved.
+/// accuracy (a few ulps). Below it one `expm1` gives both `1 - e^-k` and `e^-k`.
 const DIRECT_LEVERAGE_WEIGHT_FROM: f64 = 0.5;
 
 /// Equal panels each piece of the quoted range (between its ends, zero and the
-/// curve's kinks) starts with: the integrator bisects the smile's core about three
-/// times per side on the demo snapshot anyway, and starting from the split saves
-/// the evaluations of the panels it would discard.
-const CORE_PANELS_PER_PIECE: usize = 5;
+/// curve's kinks) starts with: with the 10/21-point rule two panels per piece meet the
+/// tolerance on the demo snapshot without bisection, one panel gets bisected (which
+/// costs more than starting split), five are more than needed.
+const CORE_PANELS_PER_PIECE: usize = 2;
 
 /// `breaks` with every interval split into `parts` equal panels.
 fn subdivide(breaks: &[f64], parts: usize) -> Vec<f64> {
@@ -96,9 +109,16 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
         // The leverage weight otm (1 - e^-k) is sign(k) c (1 - q) on both sides.
         let call = mirrored_call(k, curve.total_variance(k));
         let k_abs = k.abs();
-        let q = (-k_abs).exp();
-        // 1 - q, through expm1 near k = 0 where the difference would cancel.
-        let one_minus_q = if k_abs < DIRECT_LEVERAGE_WEIGHT_FROM { -(-k_abs).exp_m1() } else { 1.0 - q };
+        // 1 - q through expm1 near k = 0, where the difference would cancel, and q from
+        // it (one call instead of two; q >= e^-0.5 there, so 1 - (1 - q) rounds to within
+        // an ulp of q).
+        let (q, one_minus_q) = if k_abs < DIRECT_LEVERAGE_WEIGHT_FROM {
+            let one_minus_q = -(-k_abs).exp_m1();
+            (1.0 - one_minus_q, one_minus_q)
+        } else {
+            let q = (-k_abs).exp();
+            (q, 1.0 - q)
+        };
         if k >= 0.0 {
             [call * q, call, call * one_minus_q]
         } else {
@@ -106,7 +126,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
         }
     };
     let (k_lo, k_hi) = (quoted.0.min(0.0), quoted.1.max(0.0));
-    let first_step = |k: f64| curve.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);
+    let first_step = |k: f64| WING_FIRST_STEP_DEVIATIONS * curve.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);
     let (left, left_ok) = wing_points(curve, k_lo, -1.0, first_step(k_lo));
     let (right, right_ok) = wing_points(curve, k_hi, 1.0, first_step(k_hi));
 
@@ -122,7 +142,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
         absolute: REPLICATION_ABS_TOL,
         max_evaluations: REPLICATION_MAX_EVALUATIONS,
     };
-    let core = integrate(integrand, &core_breaks, tol);
+    let core = integrate_with(&GAUSS_KRONROD_21, integrand, &core_breaks, tol);
     // Wings are held to the accuracy of the total, not to their own (small) size.
     let wing_tol = QuadratureTolerance {
         relative: REPLICATION_REL_TOL,
@@ -133,8 +153,8 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
     left_breaks.push(k_lo);
     let mut right_breaks = vec![k_hi];
     right_breaks.extend(right.iter().cloned());
-    let left_q = integrate(integrand, &left_breaks, wing_tol);
-    let right_q = integrate(integrand, &right_breaks, wing_tol);
+    let left_q = integrate_with(&GAUSS_KRONROD_21, integrand, &left_breaks, wing_tol);
+    let right_q = integrate_with(&GAUSS_KRONROD_21, integrand, &right_breaks, wing_tol);
 
     // Quoted range may not reach zero; what lies between it and zero counts as wing.
     let quoted_core = if quoted.0 > k_lo || quoted.1 < k_hi {
@@ -145,7 +165,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
             inner.push(0.0);
         }
         inner.sort_by(f64::total_cmp);
-        integrate(integrand, &inner, tol).value[0]
+        integrate_with(&GAUSS_KRONROD_21, integrand, &inner, tol).value[0]
     } else {
         core.value[0]
     };
