@@ -216,7 +216,7 @@ fn check_calendar(out: &mut [SliceAnalysis]) {
 /// spread moves the variance swap by about `2 sqrt(VS) h`; the leverage swap is
 /// given the same uncertainty scaled by `sqrt(3 / n)` for `n` independent quotes.
 /// A rule of thumb (common practice, no source): it only sets relative weights.
-fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f64>> {
+pub fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f64>> {
     out.iter()
         .map(|s| {
             let spreads: Vec<f64> =
