@@ -97,9 +97,23 @@ impl Default for SlopePrior {
 }
 
 /// Solves `A t = r` for a symmetric `n x n` system (n <= 3) by Gaussian elimination
-/// with partial pivoting; `None` when (numerically) singular.
+/// with partial pivoting; `None` when (numerically) singular or `n` is not 1 to 3.
 #[inline]
-pub(crate) fn solve_small(n: usize, mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Option<[f64; 3]> {
+pub(crate) fn solve_small(n: usize, a: [[f64; 3]; 3], r: [f64; 3]) -> Option<[f64; 3]> {
+    // One copy per size, so that the loops unroll (the same operations in the same order
+    // as a loop over a run-time `n`, hence the same result to the bit).
+    match n {
+        1 => solve_fixed::<1>(a, r),
+        2 => solve_fixed::<2>(a, r),
+        3 => solve_fixed::<3>(a, r),
+        _ => None,
+    }
+}
+
+/// [`solve_small`] for `N x N`.
+#[inline]
+fn solve_fixed<const N: usize>(mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Option<[f64; 3]> {
+    let n = N;
     let scale = (0..n).map(|i| a[i][i].abs()).fold(0.0, f64::max);
     if !(scale > 0.0) || !scale.is_finite() {
         return None;
@@ -131,13 +145,10 @@ pub(crate) fn solve_small(n: usize, mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Op
 }
 
 impl InnerData<'_> {
-    /// Best `(a, d, c)` for given `(m, sigma)` and its weighted squared error.
-    fn solve(&self, m: f64, sigma: f64) -> (f64, [f64; 3]) {
-        self.solve_faces(m, sigma, true)
-    }
-
-    /// [`Self::solve`]; with `stop_at_kkt` false every face is visited (for tests).
-    fn solve_faces(&self, m: f64, sigma: f64, stop_at_kkt: bool) -> (f64, [f64; 3]) {
+    /// Best `(a, d, c)` for given `(m, sigma)`, its weighted squared error, and the
+    /// weighted sums of the basis products it was solved with ([`NormalSums`]); with
+    /// `stop_at_kkt` false every face is visited (for tests).
+    fn solve_faces(&self, m: f64, sigma: f64, stop_at_kkt: bool) -> (f64, [f64; 3], NormalSums) {
         // Normal equations of the basis [1, y, sqrt(1 + y^2)], y = (k - m)/sigma
         // (symmetric: six sums, not nine).
         let inv_sigma = 1.0 / sigma;
@@ -167,6 +178,7 @@ impl InnerData<'_> {
         let mat = [[s11, s1y, s1z], [s1y, syy + ridge, syz], [s1z, syz, szz + ridge]];
         let v = [v1, vy + p * (t_r - t_l) * inv_sigma, vz + p * (t_l + t_r) * inv_sigma];
         let s = s + p * (t_l * t_l + t_r * t_r);
+        let normal = [s11, s1y, s1z, syy, syz, szz];
         let objective = |x: &[f64; 3]| {
             let mut f = s;
             for r in 0..3 {
@@ -308,12 +320,12 @@ impl InnerData<'_> {
                     }
                     let active = &active[..count];
                     if (face_index == 0 && a_index == 0) || (stop_at_kkt && kkt(&x, active)) {
-                        return (f, x);
+                        return (f, x, normal);
                     }
                 }
             }
         }
-        best
+        (best.0, best.1, normal)
     }
 }
 
@@ -326,14 +338,21 @@ const LN_SIGMA_RANGE: (f64, f64) = (-9.0, 2.0);
 /// points per fit on the demo snapshot (measured with callgrind).
 const SVI_OUTER_START_DAMPING: f64 = 0.1;
 
-/// A point of the outer search: `(m, ln sigma)`, its reduced cost and the inner
-/// solution `(a, d, c)` there.
+/// `sum omega [1, y, z, y^2, y z, z^2]` over the quotes at one `(m, sigma)`, with
+/// `y = (k - m)/sigma` and `z = sqrt(1 + y^2)`: the normal matrix of the inner problem
+/// without the slope prior.
+type NormalSums = [f64; 6];
+
+/// A point of the outer search: `(m, ln sigma)`, its reduced cost, the inner
+/// solution `(a, d, c)` there and the sums the inner problem was solved with (the
+/// derivatives at the point reuse them).
 #[derive(Debug, Clone, Copy)]
 struct OuterPoint {
     m: f64,
     ln_sigma: f64,
     cost: f64,
     x: [f64; 3],
+    normal: NormalSums,
 }
 
 impl InnerData<'_> {
@@ -341,8 +360,8 @@ impl InnerData<'_> {
     fn outer_point(&self, m_range: (f64, f64), m: f64, ln_sigma: f64) -> OuterPoint {
         let m = m.clamp(m_range.0, m_range.1);
         let ln_sigma = ln_sigma.clamp(LN_SIGMA_RANGE.0, LN_SIGMA_RANGE.1);
-        let (cost, x) = self.solve(m, ln_sigma.exp());
-        OuterPoint { m, ln_sigma, cost, x }
+        let (cost, x, normal) = self.solve_faces(m, ln_sigma.exp(), true);
+        OuterPoint { m, ln_sigma, cost, x, normal }
     }
 
     /// Half the gradient of the reduced cost in `(m, ln sigma)` and its Gauss–Newton
@@ -362,7 +381,14 @@ impl InnerData<'_> {
         let sigma = p.ln_sigma.exp();
         let sigma_sq = sigma * sigma;
         let (a, beta, gamma) = (p.x[0], p.x[1] / sigma, p.x[2] / sigma);
-        let mut inner_inner = [[0.0; 3]; 3];
+        // sum omega d_inner d_inner^T with d_inner = [1, k - m, root] = [1, sigma y, sigma z]:
+        // the inner problem's sums at this point, scaled.
+        let [s11, s1y, s1z, syy, syz, szz] = p.normal;
+        let mut inner_inner = [
+            [s11, sigma * s1y, sigma * s1z],
+            [sigma * s1y, sigma_sq * syy, sigma_sq * syz],
+            [sigma * s1z, sigma_sq * syz, sigma_sq * szz],
+        ];
         let mut inner_outer = [[0.0; 2]; 3];
         let mut outer_outer = [[0.0; 2]; 2];
         let mut gradient = [0.0; 2];
@@ -377,9 +403,6 @@ impl InnerData<'_> {
             let d_inner = [1.0, u, root];
             let d_outer = [-beta - gamma * u / root, gamma * sigma_sq / root];
             for r in 0..3 {
-                for c in r..3 {
-                    inner_inner[r][c] += om * d_inner[r] * d_inner[c];
-                }
                 for c in 0..2 {
                     inner_outer[r][c] += om * d_inner[r] * d_outer[c];
                 }
@@ -391,11 +414,6 @@ impl InnerData<'_> {
             outer_outer[0][1] += om * d_outer[0] * d_outer[1];
         }
         outer_outer[1][0] = outer_outer[0][1];
-        for r in 0..3 {
-            for c in 0..r {
-                inner_inner[r][c] = inner_inner[c][r];
-            }
-        }
         // The slope prior P [(gamma - beta - left)^2 + (gamma + beta - right)^2].
         inner_inner[1][1] += 2.0 * self.prior.strength;
         inner_inner[2][2] += 2.0 * self.prior.strength;
@@ -761,8 +779,8 @@ mod tests {
         for i in 0..40 {
             let m = -0.4 + 0.02 * i as f64;
             for sigma in [0.001, 0.01, 0.05, 0.2, 1.0] {
-                let (fast, _) = inner.solve_faces(m, sigma, true);
-                let (full, _) = inner.solve_faces(m, sigma, false);
+                let (fast, _, _) = inner.solve_faces(m, sigma, true);
+                let (full, _, _) = inner.solve_faces(m, sigma, false);
                 // Same optimum of a convex problem, to rounding of the objective.
                 assert!((fast - full).abs() <= 1e-12 * (1.0 + full.abs()), "m {m} sigma {sigma}: {fast} vs {full}");
             }
@@ -787,7 +805,7 @@ mod tests {
         let prior = SlopePrior { strength: SVI_WING_RIDGE * k.len() as f64 * 0.15 * 0.15, ..SlopePrior::default() };
         let w_max = w.iter().cloned().fold(0.0, f64::max);
         let inner = InnerData { k: &k, w: &w, weight: &weight, w_max, slope_cap: MAX_WING_SLOPE, prior };
-        let at = |dm: f64, dl: f64| inner.solve(fitted.m + dm, (fitted.sigma.ln() + dl).exp()).0;
+        let at = |dm: f64, dl: f64| inner.solve_faces(fitted.m + dm, (fitted.sigma.ln() + dl).exp(), true).0;
         let best = at(0.0, 0.0);
         for (dm, dl) in [(1e-4, 0.0), (-1e-4, 0.0), (0.0, 1e-4), (0.0, -1e-4), (1e-4, 1e-4), (-1e-4, -1e-4)] {
             let neighbour = at(dm, dl);
