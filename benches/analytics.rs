@@ -2,8 +2,8 @@
 //! the smiles and replication alone, the rough Heston fit alone, and both.
 
 use criterion::{criterion_group, criterion_main, Criterion};
-use logstrip::analytics::analysis::{analyze, leverage_uncertainty, AnalyzeOptions};
-use logstrip::analytics::calibrate::{fit_leverage, FitSpec, LeverageTarget};
+use logstrip::analytics::analysis::{analyze, leverage_target, AnalyzeOptions};
+use logstrip::analytics::calibrate::{fit_leverage, FitSpec};
 use std::hint::black_box;
 
 fn snapshot() -> logstrip::wire::ValidSnapshot {
@@ -18,12 +18,7 @@ fn benches(c: &mut Criterion) {
     let with_fit = AnalyzeOptions { smile: snap.options.smile, fit: Some(FitSpec::default()) };
     let analysis = analyze(&snap.slices, &no_fit).expect("analysis");
     // The fit `analyze` runs, weights from the quotes' spreads included.
-    let target = LeverageTarget {
-        taus: analysis.slices.iter().map(|s| s.tau).collect(),
-        variance_swap: analysis.slices.iter().map(|s| s.replication.levels.variance).collect(),
-        leverage_swap: analysis.slices.iter().map(|s| s.replication.levels.leverage).collect(),
-        uncertainty: leverage_uncertainty(&snap.slices, &analysis.slices),
-    };
+    let target = leverage_target(&snap.slices, &analysis.slices);
     c.bench_function("smiles_and_replication_35x60", |b| b.iter(|| analyze(black_box(&snap.slices), &no_fit)));
     c.bench_function("rough_heston_fit_35", |b| b.iter(|| fit_leverage(black_box(&target), &FitSpec::default())));
     c.bench_function("full_analyze_35x60", |b| b.iter(|| analyze(black_box(&snap.slices), &with_fit)));

@@ -157,16 +157,21 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
     }
     check_calendar(&mut out);
 
-    let fit = options.fit.as_ref().map(|spec| {
-        let target = LeverageTarget {
-            taus: out.iter().map(|s| s.tau).collect(),
-            variance_swap: out.iter().map(|s| s.replication.levels.variance).collect(),
-            leverage_swap: out.iter().map(|s| s.replication.levels.leverage).collect(),
-            uncertainty: leverage_uncertainty(slices, &out),
-        };
-        fit_leverage(&target, spec)
-    });
+    let fit = options.fit.as_ref().map(|spec| fit_leverage(&leverage_target(slices, &out), spec));
     Ok(Analysis { slices: out, fit })
+}
+
+/// The swap levels the model is fitted to, from an analysis of `slices`: per expiry
+/// the variance and leverage swaps, weighted by the uncertainty the quotes' bid/ask
+/// spreads give them (no weights unless every slice has spreads). The fit of
+/// [`analyze`] uses it, and so do the benchmarks, so that they time that same fit.
+pub fn leverage_target(slices: &[Slice], out: &[SliceAnalysis]) -> LeverageTarget {
+    LeverageTarget {
+        taus: out.iter().map(|s| s.tau).collect(),
+        variance_swap: out.iter().map(|s| s.replication.levels.variance).collect(),
+        leverage_swap: out.iter().map(|s| s.replication.levels.leverage).collect(),
+        uncertainty: leverage_uncertainty(slices, out),
+    }
 }
 
 /// Forward variance per period and the calendar checks: total variance at fixed
@@ -216,7 +221,7 @@ fn check_calendar(out: &mut [SliceAnalysis]) {
 /// spread moves the variance swap by about `2 sqrt(VS) h`; the leverage swap is
 /// given the same uncertainty scaled by `sqrt(3 / n)` for `n` independent quotes.
 /// A rule of thumb (common practice, no source): it only sets relative weights.
-pub fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f64>> {
+fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f64>> {
     out.iter()
         .map(|s| {
             let spreads: Vec<f64> =

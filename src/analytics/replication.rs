@@ -9,7 +9,7 @@
 
 use super::black::mirrored_call;
 use super::kronrod_table::GAUSS_KRONROD_21;
-use super::quadrature::{integrate_with, QuadratureTolerance};
+use super::quadrature::{integrate_with, KronrodRule, QuadratureTolerance};
 use super::smile::SmileShape;
 use super::tolerances::{
     MAX_ABS_LOG_MONEYNESS, OTM_PRICE_CUTOFF, REPLICATION_ABS_TOL, REPLICATION_MAX_EVALUATIONS, REPLICATION_REL_TOL,
@@ -43,6 +43,9 @@ pub struct Replication {
     /// Integrand evaluations spent.
     pub evaluations: usize,
 }
+
+/// The Gauss–Kronrod pair of every replication integral (core, wings, quoted part).
+const REPLICATION_RULE: KronrodRule<11> = GAUSS_KRONROD_21;
 
 /// Growth factor of the steps of the wing walk, whose points become the wings' first
 /// panels. Measured on the demo snapshot (35 smiles, 10/21-point Gauss–Kronrod, the
@@ -142,7 +145,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
         absolute: REPLICATION_ABS_TOL,
         max_evaluations: REPLICATION_MAX_EVALUATIONS,
     };
-    let core = integrate_with(&GAUSS_KRONROD_21, integrand, &core_breaks, tol);
+    let core = integrate_with(&REPLICATION_RULE, integrand, &core_breaks, tol);
     // Wings are held to the accuracy of the total, not to their own (small) size.
     let wing_tol = QuadratureTolerance {
         relative: REPLICATION_REL_TOL,
@@ -153,8 +156,8 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
     left_breaks.push(k_lo);
     let mut right_breaks = vec![k_hi];
     right_breaks.extend(right.iter().cloned());
-    let left_q = integrate_with(&GAUSS_KRONROD_21, integrand, &left_breaks, wing_tol);
-    let right_q = integrate_with(&GAUSS_KRONROD_21, integrand, &right_breaks, wing_tol);
+    let left_q = integrate_with(&REPLICATION_RULE, integrand, &left_breaks, wing_tol);
+    let right_q = integrate_with(&REPLICATION_RULE, integrand, &right_breaks, wing_tol);
 
     // Quoted range may not reach zero; what lies between it and zero counts as wing.
     let quoted_core = if quoted.0 > k_lo || quoted.1 < k_hi {
@@ -165,7 +168,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
             inner.push(0.0);
         }
         inner.sort_by(f64::total_cmp);
-        integrate_with(&GAUSS_KRONROD_21, integrand, &inner, tol).value[0]
+        integrate_with(&REPLICATION_RULE, integrand, &inner, tol).value[0]
     } else {
         core.value[0]
     };

@@ -2,8 +2,8 @@
 //! times and reports wall-time statistics, so speed claims come with figures.
 
 use super::{read_input, CliError};
-use crate::analytics::analysis::{analyze, leverage_uncertainty, AnalyzeOptions};
-use crate::analytics::calibrate::{fit_leverage, FitSpec, LeverageTarget};
+use crate::analytics::analysis::{analyze, leverage_target, AnalyzeOptions};
+use crate::analytics::calibrate::{fit_leverage, FitSpec};
 use serde::Serialize;
 use std::io::Write;
 use std::path::Path;
@@ -52,12 +52,7 @@ pub fn run_bench(input: &Path, runs: usize, out: &mut dyn Write) -> Result<(), C
     let spec = snapshot.options.fit.clone().unwrap_or(FitSpec::default());
     let options = AnalyzeOptions { smile: snapshot.options.smile, fit: Some(spec.clone()) };
     // The fit `analyze` runs, weights from the quotes' spreads included.
-    let target = LeverageTarget {
-        taus: first.slices.iter().map(|s| s.tau).collect(),
-        variance_swap: first.slices.iter().map(|s| s.replication.levels.variance).collect(),
-        leverage_swap: first.slices.iter().map(|s| s.replication.levels.leverage).collect(),
-        uncertainty: leverage_uncertainty(&snapshot.slices, &first.slices),
-    };
+    let target = leverage_target(&snapshot.slices, &first.slices);
     let curve_only = AnalyzeOptions { smile: snapshot.options.smile, fit: None };
     let mut curve_samples = Vec::with_capacity(runs);
     let mut analyze_samples = Vec::with_capacity(runs);
