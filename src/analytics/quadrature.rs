@@ -168,13 +168,14 @@ pub fn integrate_with<const N: usize, const H: usize, F: FnMut(f64) -> [f64; N]>
     tolerance: QuadratureTolerance,
 ) -> Quadrature<N> {
     let per_panel = 2 * H - 1;
-    let mut panels: Vec<Panel<N>> = breakpoints
-        .windows(2)
-        .filter(|pair| pair[1] > pair[0])
-        .map(|pair| kronrod_panel(rule, &mut f, pair[0], pair[1]))
-        .collect();
     // Room for a few bisections without reallocating.
-    panels.reserve(8);
+    let mut panels: Vec<Panel<N>> = Vec::with_capacity(breakpoints.len() + 8);
+    panels.extend(
+        breakpoints
+            .windows(2)
+            .filter(|pair| pair[1] > pair[0])
+            .map(|pair| kronrod_panel(rule, &mut f, pair[0], pair[1])),
+    );
     let mut evaluations = per_panel * panels.len();
     loop {
         let mut value = [0.0; N];

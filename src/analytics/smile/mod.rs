@@ -100,6 +100,11 @@ pub trait SmileShape {
     fn total_variance(&self, k: f64) -> f64;
     /// Log-moneyness of the curve's kinks (interpolation nodes); empty when smooth.
     fn kinks(&self) -> &[f64];
+    /// Where an analytic curve bends and over what width, `(centre, width)` in
+    /// log-moneyness, when it has such a place (SVI's vertex `m` and `sigma`).
+    fn vertex(&self) -> Option<(f64, f64)> {
+        None
+    }
 }
 
 impl SmileShape for SmileCurve {
@@ -108,6 +113,12 @@ impl SmileShape for SmileCurve {
     }
     fn kinks(&self) -> &[f64] {
         SmileCurve::kinks(self)
+    }
+    fn vertex(&self) -> Option<(f64, f64)> {
+        match self {
+            Self::Svi(p) => Some((p.m, p.sigma)),
+            Self::Monotone(_) => None,
+        }
     }
 }
 
@@ -132,6 +143,9 @@ impl SmileShape for VolShifted<'_> {
     }
     fn kinks(&self) -> &[f64] {
         self.base.kinks()
+    }
+    fn vertex(&self) -> Option<(f64, f64)> {
+        self.base.vertex()
     }
 }
 
