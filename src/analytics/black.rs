@@ -6,6 +6,7 @@
 //! `d1 = -k/sqrt(w) + sqrt(w)/2`, `d2 = d1 - sqrt(w)`.
 
 use super::special::erfcx::erfcx_nonnegative;
+use super::special::exp::exp;
 use super::tolerances::IMPLIED_VOL_REL_TOL;
 use std::f64::consts::{FRAC_1_SQRT_2, PI};
 
@@ -73,7 +74,7 @@ fn exp_neg_square(x: f64) -> f64 {
     let low = x - high;
     let square = x * x;
     let error = ((high * high - square) + 2.0 * high * low) + low * low;
-    (-square).exp() * (1.0 - error)
+    exp(-square) * (1.0 - error)
 }
 
 /// Sensitivity of [`otm_price`] to `s = sqrt(w)`: the density at `d1` (the same

@@ -11,6 +11,7 @@ use super::black::mirrored_call;
 use super::kronrod_table::GAUSS_KRONROD_21;
 use super::quadrature::{integrate_with, KronrodRule, QuadratureTolerance};
 use super::smile::SmileShape;
+use super::special::exp::exp;
 use super::tolerances::{
     MAX_ABS_LOG_MONEYNESS, OTM_PRICE_CUTOFF, REPLICATION_ABS_TOL, REPLICATION_MAX_EVALUATIONS, REPLICATION_REL_TOL,
 };
@@ -164,7 +165,7 @@ impl Variable {
         match self {
             Self::LogMoneyness => (u, 1.0),
             Self::SinhAroundVertex { centre, width } => {
-                let grow = u.exp();
+                let grow = exp(u);
                 let shrink = 1.0 / grow;
                 (centre + width * 0.5 * (grow - shrink), width * 0.5 * (grow + shrink))
             }
@@ -221,7 +222,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
             let one_minus_q = -(-k_abs).exp_m1();
             (1.0 - one_minus_q, one_minus_q)
         } else {
-            let q = (-k_abs).exp();
+            let q = exp(-k_abs);
             (q, 1.0 - q)
         };
         if k >= 0.0 {

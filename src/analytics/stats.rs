@@ -5,22 +5,48 @@ pub fn median(values: &[f64]) -> Option<f64> {
     if values.is_empty() {
         return None;
     }
-    // A selection, not a sort: the same order statistics in linear time.
-    let mut v = values.to_vec();
-    let mid = v.len() / 2;
-    let (below, upper, _) = v.select_nth_unstable_by(mid, f64::total_cmp);
-    let upper = *upper;
+    // A selection, not a sort: the same order statistics in linear time. It runs on
+    // integer keys that order as `f64::total_cmp` orders the values (one conversion
+    // each way instead of one per comparison), so the result is the same double.
+    let mut keys: Vec<i64> = values.iter().map(|x| total_order_key(*x)).collect();
+    let mid = keys.len() / 2;
+    let (below, upper, _) = keys.select_nth_unstable(mid);
+    let upper = from_total_order_key(*upper);
     Some(if values.len() % 2 == 1 {
         upper
     } else {
         // The largest of the lower half is the other middle value.
-        0.5 * (below.iter().copied().max_by(f64::total_cmp).unwrap_or(upper) + upper)
+        0.5 * (below.iter().max().map_or(upper, |k| from_total_order_key(*k)) + upper)
     })
+}
+
+/// An integer that orders as [`f64::total_cmp`] orders `x`: negative values have
+/// their magnitude bits flipped (the same key as the standard library's).
+fn total_order_key(x: f64) -> i64 {
+    let bits = x.to_bits() as i64;
+    bits ^ ((((bits >> 63) as u64) >> 1) as i64)
+}
+
+/// The double whose [`total_order_key`] is `key` (the map is its own inverse: the
+/// sign bit it reads is left unchanged).
+fn from_total_order_key(key: i64) -> f64 {
+    f64::from_bits((key ^ ((((key >> 63) as u64) >> 1) as i64)) as u64)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn total_order_keys_round_trip_and_order_as_total_cmp() {
+        let values = [f64::NEG_INFINITY, -2.5, -0.0, 0.0, 1e-300, 3.0, f64::INFINITY, f64::NAN, -f64::NAN];
+        for a in values {
+            assert_eq!(from_total_order_key(total_order_key(a)).to_bits(), a.to_bits());
+            for b in values {
+                assert_eq!(total_order_key(a).cmp(&total_order_key(b)), a.total_cmp(&b), "{a} vs {b}");
+            }
+        }
+    }
 
     #[test]
     fn median_of_odd_even_and_empty_samples() {

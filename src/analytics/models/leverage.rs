@@ -12,6 +12,7 @@
 //! Classical Heston (Heston 1993, RFS 6(2)) is `a = 1`.
 
 use crate::analytics::special::digamma::digamma;
+use crate::analytics::special::exp::exp;
 use crate::analytics::special::mittag_leffler::{
     rgamma_series_term, MittagLefflerError, MittagLefflerSeries, DERIV_SERIES_COND_MAX, SERIES_BUILD_TOL,
     SERIES_COND_MAX, SERIES_MAX_TERMS, SERIES_RADIUS_MAX, SERIES_TAIL_TOL,
@@ -568,7 +569,7 @@ impl LeverageCurve {
             out.key = None;
             out.t_a.clear();
             out.z.clear();
-            out.t_a.extend(self.ln_gaps.iter().map(|l| (alpha * l).exp()));
+            out.t_a.extend(self.ln_gaps.iter().map(|l| exp(alpha * l)));
             out.z.extend(out.t_a.iter().map(|p| -mu * p));
             let z_max = out.z.iter().fold(0.0_f64, |acc, zz| acc.max(zz.abs()));
             if !z_max.is_finite() {
@@ -650,7 +651,7 @@ impl LeverageCurve {
         self.with_evaluator(a_lo, |ml| {
             for g in 0..m {
                 if out.z[g].abs() > radius {
-                    let t_lo = (a_lo * self.ln_gaps[g]).exp();
+                    let t_lo = exp(a_lo * self.ln_gaps[g]);
                     let lo = self.gaps[g] * t_lo * ml.eval(-mu * t_lo);
                     out.d_alpha[g] = (out.value[g] - lo) / HURST_STEP;
                 }
