@@ -13,9 +13,10 @@ Method, in mpmath at 60 digits:
    parses back to the same double.
 2. ln 2 / 64 is split as hi + lo: hi keeps the leading 32 bits of the double
    nearest ln 2 / 64 (so n * hi is exact for |n| < 2^21), lo is the rest, rounded.
+   64 / ln 2, which picks n, is rounded once to the nearest double.
 3. Checks before writing: every entry lies in [1, 2) and is within half an ulp of
-   2^(j/64); hi + lo is within 1e-27 of ln 2 / 64 (lo carries 53 bits below 2^-38); n * hi is exact for the largest n
-   the exponential uses (|n| <= 65536).
+   2^(j/64); hi + lo is within 1e-27 of ln 2 / 64 (lo carries 53 bits below
+   2^-38); n * hi is exact for the largest n the exponential uses (|n| <= 65536).
 """
 import sys
 
@@ -25,25 +26,21 @@ mp.mp.dps = 60
 SIZE = 64
 
 
-def nearest_double(x):
-    return float(x)
-
-
 def main():
     entries = []
     for j in range(SIZE):
         exact = mp.power(2, mp.mpf(j) / SIZE)
-        value = nearest_double(exact)
+        value = float(exact)  # float() of an mpf rounds to the nearest double
         ulp = mp.mpf(2) ** -52  # entries are in [1, 2)
         if not (1.0 <= value < 2.0) or abs(mp.mpf(value) - exact) > ulp / 2:
             sys.exit(f"entry {j} is not the nearest double to 2^({j}/{SIZE})")
         entries.append(value)
 
     step = mp.log(2) / SIZE
-    step_double = nearest_double(step)
+    step_double = float(step)
     # Keep 32 significant bits: ln 2 / 64 lies in [2^-7, 2^-6).
     hi = float(mp.floor(mp.mpf(step_double) * 2 ** (7 + 31)) / 2 ** (7 + 31))
-    lo = nearest_double(step - mp.mpf(hi))
+    lo = float(step - mp.mpf(hi))
     if abs(mp.mpf(hi) + mp.mpf(lo) - step) > mp.mpf("1e-27"):
         sys.exit("ln 2 / 64 split is not accurate")
     for n in (65536, -65536, 65535):
@@ -66,6 +63,9 @@ def main():
         "",
         f"/// `ln 2 / {SIZE} - LN2_OVER_SIZE_HI`, rounded to the nearest double.",
         f"pub const LN2_OVER_SIZE_LO: f64 = {repr(lo)};",
+        "",
+        f"/// `{SIZE} / ln 2`, rounded to the nearest double.",
+        f"pub const SIZE_OVER_LN2: f64 = {repr(float(SIZE / mp.log(2)))};",
         "",
     ]
     with open("src/analytics/special/exp_table.rs", "w") as out:

@@ -50,11 +50,11 @@ const REPLICATION_RULE: KronrodRule<11> = GAUSS_KRONROD_21;
 
 /// Growth factor of the steps of the wing walk, which finds where each wing's price
 /// falls below the cutoff; in log-moneyness (monotone smiles) its points also become
-/// the wings' first panels. Measured on the demo snapshot (35 smiles, 10/21-point Gauss–Kronrod, the
-/// error of each level against a 1e-16 reference): growth 2.5 from a first step of two
-/// ATM total deviations needs 298 evaluations per smile against 336 for the earlier
-/// 7/15-point rule with growth 1.6, with the levels within 1e-15 relative of the
-/// reference either way.
+/// the wings' first panels. Measured on the demo snapshot in log-moneyness (35 smiles,
+/// 10/21-point Gauss–Kronrod, the error of each level against a 1e-16 reference):
+/// growth 2.5 from a first step of two ATM total deviations needs 298 evaluations per
+/// smile against 336 for the earlier 7/15-point rule with growth 1.6, with the levels
+/// within 1e-15 relative of the reference either way.
 const WING_STEP_GROWTH: f64 = 2.5;
 
 /// First step of the wing walk, in units of the total deviation `sqrt(w)` at the end
@@ -90,15 +90,18 @@ fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, fi
 const DIRECT_LEVERAGE_WEIGHT_FROM: f64 = 0.5;
 
 /// Equal panels each piece of the quoted range (between its ends, zero and the
-/// curve's kinks) starts with when integrating in log-moneyness: with the 10/21-point rule two panels per piece meet the
-/// tolerance on the demo snapshot without bisection, one panel gets bisected (which
-/// costs more than starting split), five are more than needed.
+/// curve's kinks) starts with when integrating in log-moneyness: with the 10/21-point
+/// rule two panels per piece meet the tolerance on the demo snapshot without
+/// bisection, one panel gets bisected (which costs more than starting split), five
+/// are more than needed.
 const CORE_PANELS_PER_PIECE: usize = 2;
 
-/// `breaks` with every interval split into `parts` equal panels.
-fn subdivide(breaks: &[f64], parts: usize) -> Vec<f64> {
-    let mut out = Vec::with_capacity(breaks.len() * parts);
-    for pair in breaks.windows(2) {
+/// `breaks` with every interval split into equal panels, `parts_of(width)` of them
+/// for an interval of that width.
+fn subdivide(breaks: &[f64], parts_of: impl Fn(f64) -> usize) -> Vec<f64> {
+    let parts: Vec<usize> = breaks.windows(2).map(|pair| parts_of(pair[1] - pair[0])).collect();
+    let mut out = Vec::with_capacity(parts.iter().sum::<usize>() + 1);
+    for (pair, &parts) in breaks.windows(2).zip(&parts) {
         out.extend((0..parts).map(|i| pair[0] + (pair[1] - pair[0]) * i as f64 / parts as f64));
     }
     out.extend(breaks.last());
@@ -176,7 +179,7 @@ impl Variable {
     /// breakpoints `breaks` (the quoted range's ends, zero and the curve's kinks).
     fn core_panels(self, breaks: &[f64]) -> Vec<f64> {
         match self {
-            Self::LogMoneyness => subdivide(breaks, CORE_PANELS_PER_PIECE),
+            Self::LogMoneyness => subdivide(breaks, |_| CORE_PANELS_PER_PIECE),
             Self::SinhAroundVertex { .. } => self.split_to_width(breaks),
         }
     }
@@ -195,14 +198,7 @@ impl Variable {
     /// [`MAX_SINH_PANEL_WIDTH`].
     fn split_to_width(self, breaks: &[f64]) -> Vec<f64> {
         let us: Vec<f64> = breaks.iter().map(|k| self.of(*k)).collect();
-        let mut out = Vec::with_capacity(us.len() + 8);
-        for pair in us.windows(2) {
-            let parts =
-                ((pair[1] - pair[0]) / MAX_SINH_PANEL_WIDTH).ceil().clamp(1.0, MAX_SINH_PANELS_PER_PIECE) as usize;
-            out.extend((0..parts).map(|i| pair[0] + (pair[1] - pair[0]) * i as f64 / parts as f64));
-        }
-        out.extend(us.last());
-        out
+        subdivide(&us, |width| (width / MAX_SINH_PANEL_WIDTH).ceil().clamp(1.0, MAX_SINH_PANELS_PER_PIECE) as usize)
     }
 }
 

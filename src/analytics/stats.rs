@@ -20,17 +20,22 @@ pub fn median(values: &[f64]) -> Option<f64> {
     })
 }
 
-/// An integer that orders as [`f64::total_cmp`] orders `x`: negative values have
-/// their magnitude bits flipped (the same key as the standard library's).
+/// An integer that orders as [`f64::total_cmp`] orders `x` (the same key as the
+/// standard library's).
 fn total_order_key(x: f64) -> i64 {
-    let bits = x.to_bits() as i64;
-    bits ^ ((((bits >> 63) as u64) >> 1) as i64)
+    flip_magnitude_if_negative(x.to_bits() as i64)
 }
 
-/// The double whose [`total_order_key`] is `key` (the map is its own inverse: the
-/// sign bit it reads is left unchanged).
+/// The double whose [`total_order_key`] is `key`.
 fn from_total_order_key(key: i64) -> f64 {
-    f64::from_bits((key ^ ((((key >> 63) as u64) >> 1) as i64)) as u64)
+    f64::from_bits(flip_magnitude_if_negative(key) as u64)
+}
+
+/// Flips the 63 magnitude bits when the sign bit is set. It leaves the sign bit as it
+/// is, so applying it twice gives back the input: it maps bit patterns to total-order
+/// keys and back.
+fn flip_magnitude_if_negative(bits: i64) -> i64 {
+    bits ^ ((((bits >> 63) as u64) >> 1) as i64)
 }
 
 #[cfg(test)]

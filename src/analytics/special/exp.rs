@@ -12,10 +12,7 @@
 //! Within about one ulp of the correctly rounded value; the test below measures it
 //! against the C library.
 
-use super::exp_table::{LN2_OVER_SIZE_HI, LN2_OVER_SIZE_LO, TWO_POW_FRACTION};
-
-/// `64 / ln 2`, the double nearest it (mpmath).
-const SIZE_OVER_LN2: f64 = 92.332_482_616_893_66;
+use super::exp_table::{LN2_OVER_SIZE_HI, LN2_OVER_SIZE_LO, SIZE_OVER_LN2, TWO_POW_FRACTION};
 
 /// `1.5 * 2^52`: adding it rounds a double below `2^51` in magnitude to an integer,
 /// which then sits in the low bits of the sum.

@@ -74,3 +74,6 @@ pub const LN2_OVER_SIZE_HI: f64 = 0.01083042469326756;
 
 /// `ln 2 / 64 - LN2_OVER_SIZE_HI`, rounded to the nearest double.
 pub const LN2_OVER_SIZE_LO: f64 = 2.9815858269852933e-12;
+
+/// `64 / ln 2`, rounded to the nearest double.
+pub const SIZE_OVER_LN2: f64 = 92.33248261689366;
