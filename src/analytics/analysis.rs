@@ -224,11 +224,10 @@ fn check_calendar(out: &mut [SliceAnalysis]) {
 fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f64>> {
     out.iter()
         .map(|s| {
-            let spreads: Vec<f64> =
-                slices[s.input_index].quotes().iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0).collect();
-            let h = super::stats::median(&spreads)?;
+            let spreads = || slices[s.input_index].quotes().iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0);
+            let h = super::stats::median_of(spreads())?;
             let vs = s.replication.levels.variance.max(1e-12);
-            Some(2.0 * vs.sqrt() * h * (3.0 / spreads.len() as f64).sqrt())
+            Some(2.0 * vs.sqrt() * h * (3.0 / spreads().count() as f64).sqrt())
         })
         .collect()
 }

@@ -2,17 +2,28 @@
 
 /// Median of a sample (`None` when empty); NaNs sort last (`f64::total_cmp`).
 pub fn median(values: &[f64]) -> Option<f64> {
-    if values.is_empty() {
-        return None;
-    }
+    median_of(values.iter().copied())
+}
+
+/// [`median`] of the values an iterator yields (a filtered sample without
+/// collecting it first: the keys below are the only copy, allocated once at the
+/// iterator's upper size bound).
+pub fn median_of(values: impl IntoIterator<Item = f64>) -> Option<f64> {
     // A selection, not a sort: the same order statistics in linear time. It runs on
     // integer keys that order as `f64::total_cmp` orders the values (one conversion
     // each way instead of one per comparison), so the result is the same double.
-    let mut keys: Vec<i64> = values.iter().map(|x| total_order_key(*x)).collect();
+    let values = values.into_iter();
+    let (lower, upper) = values.size_hint();
+    let mut keys: Vec<i64> = Vec::with_capacity(upper.unwrap_or(lower));
+    keys.extend(values.map(total_order_key));
+    if keys.is_empty() {
+        return None;
+    }
     let mid = keys.len() / 2;
+    let odd = keys.len() % 2 == 1;
     let (below, upper, _) = keys.select_nth_unstable(mid);
     let upper = from_total_order_key(*upper);
-    Some(if values.len() % 2 == 1 {
+    Some(if odd {
         upper
     } else {
         // The largest of the lower half is the other middle value.

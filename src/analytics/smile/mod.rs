@@ -167,8 +167,10 @@ pub struct FittedSmile {
 /// where `g >= 0` (Durrleman 2010, "From implied to spot volatilities", Finance
 /// Stoch. 14).
 pub fn durrleman_g(k: f64, p: SmilePoint) -> f64 {
-    let a = 1.0 - k * p.dw / (2.0 * p.w);
-    a * a - 0.25 * p.dw * p.dw * (1.0 / p.w + 0.25) + 0.5 * p.d2w
+    // One division: `1/w` serves both terms.
+    let inv_w = 1.0 / p.w;
+    let a = 1.0 - 0.5 * k * p.dw * inv_w;
+    a * a - 0.25 * p.dw * p.dw * (inv_w + 0.25) + 0.5 * p.d2w
 }
 
 /// Where a smile has butterfly arbitrage: the range of log-moneyness with `g < 0`
