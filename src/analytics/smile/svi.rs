@@ -402,9 +402,10 @@ impl InnerData<'_> {
             }
             let u = self.k[i] - p.m;
             let root = (u * u + sigma_sq).sqrt();
+            let gamma_over_root = gamma / root;
             let residual = a + beta * u + gamma * root - self.w[i];
             let d_inner = [1.0, u, root];
-            let d_outer = [-beta - gamma * u / root, gamma * sigma_sq / root];
+            let d_outer = [-beta - gamma_over_root * u, gamma_over_root * sigma_sq];
             for r in 0..3 {
                 for c in 0..2 {
                     inner_outer[r][c] += om * d_inner[r] * d_outer[c];
