@@ -47,12 +47,49 @@ pub fn mirrored_call(k: f64, w: f64) -> f64 {
     if w.is_nan() || w <= 0.0 {
         return 0.0;
     }
+    let (near, far) = erfc_arguments(k, w);
+    call_from_arguments(near, far, exp_neg_square(near))
+}
+
+/// Calls worked out together: [`mirrored_call`] of each `(k[i], w[i])` into `out[i]`,
+/// the same arithmetic to the bit, in stages over blocks of points. The points are
+/// independent, so a stage's square roots, divisions, exponentials and polynomials
+/// overlap across points instead of each waiting on the previous step of its own chain
+/// (one call is a chain of about 120 cycles of latency).
+pub fn mirrored_calls(k: &[f64], w: &[f64], out: &mut [f64]) {
+    const BLOCK: usize = 8;
+    for ((k, w), out) in k.chunks(BLOCK).zip(w.chunks(BLOCK)).zip(out.chunks_mut(BLOCK)) {
+        let n = k.len().min(w.len()).min(out.len());
+        let mut near = [0.0; BLOCK];
+        let mut far = [0.0; BLOCK];
+        let mut gauss = [0.0; BLOCK];
+        // A point without a price (w <= 0 or NaN) runs through the stages with w = 1
+        // and gets 0 at the end, as in the one-point version.
+        let valid = |w: f64| !(w.is_nan() || w <= 0.0);
+        for i in 0..n {
+            (near[i], far[i]) = erfc_arguments(k[i], if valid(w[i]) { w[i] } else { 1.0 });
+        }
+        for i in 0..n {
+            gauss[i] = exp_neg_square(near[i]);
+        }
+        for i in 0..n {
+            out[i] = if valid(w[i]) { call_from_arguments(near[i], far[i], gauss[i]) } else { 0.0 };
+        }
+    }
+}
+
+/// `(a - b, a + b)` of [`mirrored_call`]: the arguments of the two `erfc`s.
+#[inline(always)]
+fn erfc_arguments(k: f64, w: f64) -> (f64, f64) {
     let s = w.sqrt();
     let a = k.abs() / s * FRAC_1_SQRT_2;
     let b = s * (0.5 * FRAC_1_SQRT_2);
-    let near = a - b;
-    let far = a + b;
-    let gauss = exp_neg_square(near);
+    (a - b, a + b)
+}
+
+/// The call of [`mirrored_call`] from its `erfc` arguments and `exp(-near^2)`.
+#[inline(always)]
+fn call_from_arguments(near: f64, far: f64, gauss: f64) -> f64 {
     let call = if near >= 0.0 {
         0.5 * gauss * (erfcx_nonnegative(near) - erfcx_nonnegative(far))
     } else {
@@ -67,6 +104,7 @@ pub fn mirrored_call(k: f64, w: f64) -> f64 {
 /// for extending the available precision"), so that the exponential does not
 /// amplify the rounding of the square (`x^2` up to about 40 in the wings, where
 /// it would cost 40 ulps).
+#[inline(always)]
 fn exp_neg_square(x: f64) -> f64 {
     const SPLITTER: f64 = 134_217_729.0; // 2^27 + 1
     let scaled = SPLITTER * x;

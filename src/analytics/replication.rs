@@ -7,9 +7,9 @@
 //! `GS = (2/tau) Int otm(k) dk`, and the leverage swap with its own integrand
 //! `LS = (2/tau) Int otm(k) (1 - e^-k) dk`, so that it does not cancel.
 
-use super::black::mirrored_call;
+use super::black::{mirrored_call, mirrored_calls};
 use super::kronrod_table::GAUSS_KRONROD_21;
-use super::quadrature::{integrate_with, KronrodRule, QuadratureTolerance};
+use super::quadrature::{integrate_batches_with, KronrodRule, QuadratureTolerance, MAX_PANEL_NODES};
 use super::smile::SmileShape;
 use super::special::exp::exp;
 use super::tolerances::{
@@ -175,6 +175,13 @@ impl Variable {
         }
     }
 
+    /// [`Variable::moneyness_and_jacobian`] at each `u[i]` into `k[i]` and `jacobian[i]`.
+    fn moneyness_and_jacobians(self, u: &[f64], k: &mut [f64], jacobian: &mut [f64]) {
+        for ((u, k), jacobian) in u.iter().zip(k.iter_mut()).zip(jacobian.iter_mut()) {
+            (*k, *jacobian) = self.moneyness_and_jacobian(*u);
+        }
+    }
+
     /// Panel ends, in this variable, over the pieces between the sorted log-moneyness
     /// breakpoints `breaks` (the quoted range's ends, zero and the curve's kinks).
     fn core_panels(self, breaks: &[f64]) -> Vec<f64> {
@@ -202,35 +209,48 @@ impl Variable {
     }
 }
 
+/// The three integrands at `k` from the call at `|k|`: `[otm e^-k, otm, otm (1 - e^-k)]`.
+#[inline(always)]
+fn swap_weights(k: f64, call: f64) -> [f64; 3] {
+    // With c the call at |k| and q = e^-|k|: for k >= 0, otm = c and
+    // otm e^-k = c q; for k < 0, otm = c q (put-call symmetry) and otm e^-k = c.
+    // The leverage weight otm (1 - e^-k) is sign(k) c (1 - q) on both sides.
+    let k_abs = k.abs();
+    // 1 - q through expm1 near k = 0, where the difference would cancel, and q from
+    // it (one call instead of two; q >= e^-0.5 there, so 1 - (1 - q) rounds to within
+    // an ulp of q).
+    let (q, one_minus_q) = if k_abs < DIRECT_LEVERAGE_WEIGHT_FROM {
+        let one_minus_q = -(-k_abs).exp_m1();
+        (1.0 - one_minus_q, one_minus_q)
+    } else {
+        let q = exp(-k_abs);
+        (q, 1.0 - q)
+    };
+    if k >= 0.0 {
+        [call * q, call, call * one_minus_q]
+    } else {
+        [call, call * q, -(call * one_minus_q)]
+    }
+}
+
 /// Replicates the swap levels of `curve` for an expiry `tau` years away. `quoted`
 /// is the range of quoted log-moneyness; what lies beyond it counts as wing.
 pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64) -> Replication {
-    let integrand = |k: f64| {
-        // With c the call at |k| and q = e^-|k|: for k >= 0, otm = c and
-        // otm e^-k = c q; for k < 0, otm = c q (put-call symmetry) and otm e^-k = c.
-        // The leverage weight otm (1 - e^-k) is sign(k) c (1 - q) on both sides.
-        let call = mirrored_call(k, curve.total_variance(k));
-        let k_abs = k.abs();
-        // 1 - q through expm1 near k = 0, where the difference would cancel, and q from
-        // it (one call instead of two; q >= e^-0.5 there, so 1 - (1 - q) rounds to within
-        // an ulp of q).
-        let (q, one_minus_q) = if k_abs < DIRECT_LEVERAGE_WEIGHT_FROM {
-            let one_minus_q = -(-k_abs).exp_m1();
-            (1.0 - one_minus_q, one_minus_q)
-        } else {
-            let q = exp(-k_abs);
-            (q, 1.0 - q)
-        };
-        if k >= 0.0 {
-            [call * q, call, call * one_minus_q]
-        } else {
-            [call, call * q, -(call * one_minus_q)]
-        }
-    };
     let variable = Variable::for_curve(curve);
-    let integrand = |u: f64| {
-        let (k, jacobian) = variable.moneyness_and_jacobian(u);
-        integrand(k).map(|x| x * jacobian)
+    // The integrand at a panel's nodes, in stages over all of them (see
+    // `mirrored_calls`): log-moneyness and dk/du, total variance, calls, weights.
+    let integrand = |u: &[f64], out: &mut [[f64; 3]]| {
+        let n = u.len().min(out.len()).min(MAX_PANEL_NODES);
+        let mut k = [0.0; MAX_PANEL_NODES];
+        let mut jacobian = [0.0; MAX_PANEL_NODES];
+        variable.moneyness_and_jacobians(&u[..n], &mut k[..n], &mut jacobian[..n]);
+        let mut w = [0.0; MAX_PANEL_NODES];
+        curve.total_variances(&k[..n], &mut w[..n]);
+        let mut call = [0.0; MAX_PANEL_NODES];
+        mirrored_calls(&k[..n], &w[..n], &mut call[..n]);
+        for i in 0..n {
+            out[i] = swap_weights(k[i], call[i]).map(|x| x * jacobian[i]);
+        }
     };
     let (k_lo, k_hi) = (quoted.0.min(0.0), quoted.1.max(0.0));
     let first_step = |k: f64| WING_FIRST_STEP_DEVIATIONS * curve.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);
@@ -248,7 +268,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
         absolute: REPLICATION_ABS_TOL,
         max_evaluations: REPLICATION_MAX_EVALUATIONS,
     };
-    let core = integrate_with(&REPLICATION_RULE, integrand, &variable.core_panels(&core_breaks), tol);
+    let core = integrate_batches_with(&REPLICATION_RULE, integrand, &variable.core_panels(&core_breaks), tol);
     // Wings are held to the accuracy of the total, not to their own (small) size.
     let wing_tol = QuadratureTolerance {
         relative: REPLICATION_REL_TOL,
@@ -259,8 +279,8 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
     left_breaks.push(k_lo);
     let mut right_breaks = vec![k_hi];
     right_breaks.extend(right.iter().cloned());
-    let left_q = integrate_with(&REPLICATION_RULE, integrand, &variable.wing_panels(&left_breaks), wing_tol);
-    let right_q = integrate_with(&REPLICATION_RULE, integrand, &variable.wing_panels(&right_breaks), wing_tol);
+    let left_q = integrate_batches_with(&REPLICATION_RULE, integrand, &variable.wing_panels(&left_breaks), wing_tol);
+    let right_q = integrate_batches_with(&REPLICATION_RULE, integrand, &variable.wing_panels(&right_breaks), wing_tol);
 
     // Quoted range may not reach zero; what lies between it and zero counts as wing.
     let quoted_core = if quoted.0 > k_lo || quoted.1 < k_hi {
@@ -271,7 +291,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
             inner.push(0.0);
         }
         inner.sort_by(f64::total_cmp);
-        integrate_with(&REPLICATION_RULE, integrand, &variable.core_panels(&inner), tol).value[0]
+        integrate_batches_with(&REPLICATION_RULE, integrand, &variable.core_panels(&inner), tol).value[0]
     } else {
         core.value[0]
     };

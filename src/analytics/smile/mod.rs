@@ -105,6 +105,13 @@ pub trait SmileShape {
     fn vertex(&self) -> Option<(f64, f64)> {
         None
     }
+    /// [`SmileShape::total_variance`] at each `k[i]` into `w[i]`: a curve that
+    /// dispatches on its kind can do so once for many points.
+    fn total_variances(&self, k: &[f64], w: &mut [f64]) {
+        for (k, w) in k.iter().zip(w.iter_mut()) {
+            *w = self.total_variance(*k);
+        }
+    }
 }
 
 impl SmileShape for SmileCurve {
@@ -118,6 +125,12 @@ impl SmileShape for SmileCurve {
         match self {
             Self::Svi(p) => Some((p.m, p.sigma)),
             Self::Monotone(_) => None,
+        }
+    }
+    fn total_variances(&self, k: &[f64], w: &mut [f64]) {
+        match self {
+            Self::Svi(p) => k.iter().zip(w.iter_mut()).for_each(|(k, w)| *w = p.total_variance(*k)),
+            Self::Monotone(m) => k.iter().zip(w.iter_mut()).for_each(|(k, w)| *w = m.point(*k).w),
         }
     }
 }
