@@ -150,16 +150,18 @@ fn solve_fixed<const N: usize>(mut a: [[f64; 3]; 3], mut r: [f64; 3]) -> Option<
 impl InnerData<'_> {
     /// Best `(a, d, c)` for given `(m, sigma)`, its weighted squared error, and the
     /// weighted sums of the basis products it was solved with ([`NormalSums`]); with
-    /// `stop_at_kkt` false every face is visited (for tests).
-    fn solve_faces(&self, m: f64, sigma: f64, stop_at_kkt: bool) -> (f64, [f64; 3], NormalSums) {
+    /// `stop_at_kkt` false every face is visited (for tests). `roots[i]` receives
+    /// `sqrt(1 + y_i^2)` of each quote, which the derivatives at this point reuse.
+    fn solve_faces(&self, m: f64, sigma: f64, stop_at_kkt: bool, roots: &mut [f64]) -> (f64, [f64; 3], NormalSums) {
         // Normal equations of the basis [1, y, sqrt(1 + y^2)], y = (k - m)/sigma
         // (symmetric: six sums, not nine).
         let inv_sigma = 1.0 / sigma;
         let (mut s11, mut s1y, mut s1z, mut syy, mut syz, mut szz) = (0.0, 0.0, 0.0, 0.0, 0.0, 0.0);
         let (mut v1, mut vy, mut vz, mut s) = (0.0, 0.0, 0.0, 0.0);
-        for i in 0..self.k.len() {
+        for i in 0..self.k.len().min(roots.len()) {
             let y = (self.k[i] - m) * inv_sigma;
             let z = (1.0 + y * y).sqrt();
+            roots[i] = z;
             let om = self.weight[i];
             let (oy, oz, ow) = (om * y, om * z, om * self.w[i]);
             s11 += om;
@@ -359,11 +361,20 @@ struct OuterPoint {
 }
 
 impl InnerData<'_> {
+    /// `sqrt(1 + y_i^2)`, `y_i = (k_i - m)/sigma`, as [`Self::solve_faces`] computes it.
+    fn fill_roots(&self, m: f64, sigma: f64, roots: &mut [f64]) {
+        let inv_sigma = 1.0 / sigma;
+        for (k, z) in self.k.iter().zip(roots.iter_mut()) {
+            let y = (k - m) * inv_sigma;
+            *z = (1.0 + y * y).sqrt();
+        }
+    }
+
     /// The reduced cost at `(m, ln sigma)`, both clamped into the search box.
-    fn outer_point(&self, m_range: (f64, f64), m: f64, ln_sigma: f64) -> OuterPoint {
+    fn outer_point(&self, m_range: (f64, f64), m: f64, ln_sigma: f64, roots: &mut [f64]) -> OuterPoint {
         let m = m.clamp(m_range.0, m_range.1);
         let ln_sigma = ln_sigma.clamp(LN_SIGMA_RANGE.0, LN_SIGMA_RANGE.1);
-        let (cost, x, normal) = self.solve_faces(m, ln_sigma.exp(), true);
+        let (cost, x, normal) = self.solve_faces(m, ln_sigma.exp(), true, roots);
         OuterPoint { m, ln_sigma, cost, x, normal }
     }
 
@@ -380,7 +391,10 @@ impl InnerData<'_> {
     /// matrix is the Gauss–Newton matrix of all five variables with the inner ones
     /// eliminated (Schur complement) over the face of the constraints the inner
     /// solution lies on.
-    fn outer_derivatives(&self, p: &OuterPoint) -> ([f64; 2], [[f64; 2]; 2]) {
+    ///
+    /// `roots` holds `sqrt(1 + y_i^2)` at this point (from [`Self::solve_faces`]), so
+    /// that each quote's `sqrt((k - m)^2 + sigma^2)` is `sigma` times it.
+    fn outer_derivatives(&self, p: &OuterPoint, roots: &[f64]) -> ([f64; 2], [[f64; 2]; 2]) {
         let sigma = p.ln_sigma.exp();
         let sigma_sq = sigma * sigma;
         let (a, beta, gamma) = (p.x[0], p.x[1] / sigma, p.x[2] / sigma);
@@ -395,13 +409,13 @@ impl InnerData<'_> {
         let mut inner_outer = [[0.0; 2]; 3];
         let mut outer_outer = [[0.0; 2]; 2];
         let mut gradient = [0.0; 2];
-        for i in 0..self.k.len() {
+        for i in 0..self.k.len().min(roots.len()) {
             let om = self.weight[i];
             if om == 0.0 {
                 continue;
             }
             let u = self.k[i] - p.m;
-            let root = (u * u + sigma_sq).sqrt();
+            let root = sigma * roots[i];
             let gamma_over_root = gamma / root;
             let residual = a + beta * u + gamma * root - self.w[i];
             let d_inner = [1.0, u, root];
@@ -485,10 +499,15 @@ impl InnerData<'_> {
     /// than the start.
     fn search_outer(&self, m_range: (f64, f64), start: OuterPoint) -> OuterPoint {
         let mut point = start;
+        // sqrt(1 + y^2) per quote at the current point and at the trial point: the
+        // derivatives reuse what the inner solve computed.
+        let mut roots = vec![0.0; self.k.len()];
+        let mut trial_roots = vec![0.0; self.k.len()];
+        self.fill_roots(point.m, point.ln_sigma.exp(), &mut roots);
         let mut damping = SVI_OUTER_START_DAMPING;
         let step_scale = [(m_range.1 - m_range.0).max(1e-3), 1.0];
         for _ in 0..SVI_OUTER_MAX_ITERATIONS {
-            let (gradient, hessian) = self.outer_derivatives(&point);
+            let (gradient, hessian) = self.outer_derivatives(&point, &roots);
             let diag_floor = 1e-12 * hessian[0][0].max(hessian[1][1]).max(1e-300);
             // The stop of the model fit (`levenberg.rs`): when even the undamped step, the
             // most the Gauss–Newton model offers from here, would lower the cost by at most
@@ -519,9 +538,10 @@ impl InnerData<'_> {
                     damping *= 10.0;
                     continue;
                 };
-                let trial = self.outer_point(m_range, point.m + step[0], point.ln_sigma + step[1]);
+                let trial = self.outer_point(m_range, point.m + step[0], point.ln_sigma + step[1], &mut trial_roots);
                 if trial.cost < point.cost {
                     damping = (damping / 3.0).max(1e-12);
+                    std::mem::swap(&mut roots, &mut trial_roots);
                     accepted = Some(trial);
                     break;
                 }
@@ -586,13 +606,15 @@ fn fit_weighted(
     let n_eff = weight.iter().filter(|x| **x > 0.0).count() as f64;
     let prior = SlopePrior { strength: prior.strength * n_eff * atm_sd * atm_sd, ..prior };
     let inner = InnerData { k, w, weight, w_max, slope_cap: MAX_WING_SLOPE, prior };
+    // Scratch for the inner solves of the starts (their derivatives are not needed).
+    let mut roots = vec![0.0; k.len()];
     let k_lo = k.iter().cloned().fold(f64::INFINITY, f64::min);
     let k_hi = k.iter().cloned().fold(f64::NEG_INFINITY, f64::max);
     let span = (k_hi - k_lo).max(1e-3);
     let m_range = (k_lo, k_hi);
     let warm_result = warm.map(|(start, good_enough)| {
         let sigma = (start.sigma_per_sd * atm_sd).clamp(1e-4, 7.0);
-        let point = inner.outer_point(m_range, start.m_per_sd * atm_sd, sigma.ln());
+        let point = inner.outer_point(m_range, start.m_per_sd * atm_sd, sigma.ln(), &mut roots);
         (inner.search_outer(m_range, point), good_enough)
     });
     if let Some((best, good_enough)) = warm_result {
@@ -606,13 +628,14 @@ fn fit_weighted(
         let m = k_lo + span * (0.25 + 0.25 * i as f64);
         for scale in [0.1, 0.3, 1.0, 3.0] {
             let sigma = (atm_sd * scale).clamp(1e-4, 7.0);
-            let candidate = inner.outer_point(m_range, m, sigma.ln());
+            let candidate = inner.outer_point(m_range, m, sigma.ln(), &mut roots);
             if start.is_none_or(|s| candidate.cost < s.cost) {
                 start = Some(candidate);
             }
         }
     }
-    let start = start.unwrap_or_else(|| inner.outer_point(m_range, 0.5 * (k_lo + k_hi), atm_sd.max(1e-4).ln()));
+    let start =
+        start.unwrap_or_else(|| inner.outer_point(m_range, 0.5 * (k_lo + k_hi), atm_sd.max(1e-4).ln(), &mut roots));
     let mut best = inner.search_outer(m_range, start);
     if let Some((warm_best, _)) = warm_result {
         if warm_best.cost < best.cost {
@@ -783,8 +806,8 @@ mod tests {
         for i in 0..40 {
             let m = -0.4 + 0.02 * i as f64;
             for sigma in [0.001, 0.01, 0.05, 0.2, 1.0] {
-                let (fast, _, _) = inner.solve_faces(m, sigma, true);
-                let (full, _, _) = inner.solve_faces(m, sigma, false);
+                let (fast, _, _) = inner.solve_faces(m, sigma, true, &mut vec![0.0; k.len()]);
+                let (full, _, _) = inner.solve_faces(m, sigma, false, &mut vec![0.0; k.len()]);
                 // Same optimum of a convex problem, to rounding of the objective.
                 assert!((fast - full).abs() <= 1e-12 * (1.0 + full.abs()), "m {m} sigma {sigma}: {fast} vs {full}");
             }
@@ -809,7 +832,9 @@ mod tests {
         let prior = SlopePrior { strength: SVI_WING_RIDGE * k.len() as f64 * 0.15 * 0.15, ..SlopePrior::default() };
         let w_max = w.iter().cloned().fold(0.0, f64::max);
         let inner = InnerData { k: &k, w: &w, weight: &weight, w_max, slope_cap: MAX_WING_SLOPE, prior };
-        let at = |dm: f64, dl: f64| inner.solve_faces(fitted.m + dm, (fitted.sigma.ln() + dl).exp(), true).0;
+        let at = |dm: f64, dl: f64| {
+            inner.solve_faces(fitted.m + dm, (fitted.sigma.ln() + dl).exp(), true, &mut vec![0.0; k.len()]).0
+        };
         let best = at(0.0, 0.0);
         for (dm, dl) in [(1e-4, 0.0), (-1e-4, 0.0), (0.0, 1e-4), (0.0, -1e-4), (1e-4, 1e-4), (-1e-4, -1e-4)] {
             let neighbour = at(dm, dl);
