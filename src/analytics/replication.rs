@@ -79,7 +79,8 @@ const WING_END_BISECTIONS: usize = 4;
 /// (and, on the put side, the put in units of the strike) is below the cutoff;
 /// returns the visited points (outward order) and whether the cutoff was reached.
 fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, first_step: f64) -> (Vec<f64>, bool) {
-    let mut points = Vec::new();
+    // Room for the usual walk (5 to 8 steps) without growing.
+    let mut points = Vec::with_capacity(16);
     let mut k = start;
     let mut step = first_step;
     loop {
@@ -127,9 +128,10 @@ const CORE_PANELS_PER_PIECE: usize = 2;
 /// `breaks` with every interval split into equal panels, `parts_of(width)` of them
 /// for an interval of that width.
 fn subdivide(breaks: &[f64], parts_of: impl Fn(f64) -> usize) -> Vec<f64> {
-    let parts: Vec<usize> = breaks.windows(2).map(|pair| parts_of(pair[1] - pair[0])).collect();
-    let mut out = Vec::with_capacity(parts.iter().sum::<usize>() + 1);
-    for (pair, &parts) in breaks.windows(2).zip(&parts) {
+    // Counted twice (a division and a rounding each) rather than kept in a second vector.
+    let mut out = Vec::with_capacity(breaks.windows(2).map(|pair| parts_of(pair[1] - pair[0])).sum::<usize>() + 1);
+    for pair in breaks.windows(2) {
+        let parts = parts_of(pair[1] - pair[0]);
         out.extend((0..parts).map(|i| pair[0] + (pair[1] - pair[0]) * i as f64 / parts as f64));
     }
     out.extend(breaks.last());
@@ -285,7 +287,8 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
     let (left, left_ok) = wing_points(curve, k_lo, -1.0, first_step(k_lo));
     let (right, right_ok) = wing_points(curve, k_hi, 1.0, first_step(k_hi));
 
-    let mut core_breaks: Vec<f64> = curve.kinks().iter().cloned().filter(|k| *k > k_lo && *k < k_hi).collect();
+    let mut core_breaks: Vec<f64> = Vec::with_capacity(curve.kinks().len() + 3);
+    core_breaks.extend(curve.kinks().iter().cloned().filter(|k| *k > k_lo && *k < k_hi));
     core_breaks.push(k_lo);
     core_breaks.push(k_hi);
     core_breaks.push(0.0);
@@ -303,9 +306,11 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
         absolute: (REPLICATION_REL_TOL * core.value[1].abs().min(core.value[0].abs())).max(REPLICATION_ABS_TOL),
         max_evaluations: REPLICATION_MAX_EVALUATIONS,
     };
-    let mut left_breaks: Vec<f64> = left.iter().rev().cloned().collect();
+    let mut left_breaks: Vec<f64> = Vec::with_capacity(left.len() + 1);
+    left_breaks.extend(left.iter().rev().cloned());
     left_breaks.push(k_lo);
-    let mut right_breaks = vec![k_hi];
+    let mut right_breaks = Vec::with_capacity(right.len() + 1);
+    right_breaks.push(k_hi);
     right_breaks.extend(right.iter().cloned());
     let left_q = integrate_batches_with(&REPLICATION_RULE, integrand, &variable.wing_panels(&left_breaks), wing_tol);
     let right_q = integrate_batches_with(&REPLICATION_RULE, integrand, &variable.wing_panels(&right_breaks), wing_tol);

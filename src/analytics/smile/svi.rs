@@ -8,7 +8,7 @@
 //! small grid.
 
 use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
-use crate::analytics::stats::{median, median_of};
+use crate::analytics::stats::median_of;
 use crate::analytics::tolerances::{
     DEFAULT_HALF_SPREAD_VOL, MAX_WING_SLOPE, OUTLIER_FLOOR_VOL, OUTLIER_SIGMAS, SVI_OUTER_COST_REL_TOL,
     SVI_OUTER_MAX_DAMPING_TRIES, SVI_OUTER_MAX_ITERATIONS, SVI_OUTER_PREDICTED_GAIN_TOL, SVI_OUTER_STEP_TOL,
@@ -693,10 +693,11 @@ pub fn fit_from(
     let w: Vec<f64> = quotes.iter().map(|q| q.vol * q.vol * tau).collect();
     let spreads = quotes.iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0);
     let default_spread = median_of(spreads).unwrap_or(DEFAULT_HALF_SPREAD_VOL);
-    let half_spread: Vec<f64> =
-        quotes.iter().map(|q| q.half_spread.filter(|h| *h > 0.0).unwrap_or(default_spread)).collect();
     // A vol error e maps to a total-variance error of about 2 vol tau e.
-    let mut weight: Vec<f64> = (0..n).map(|i| 1.0 / (2.0 * quotes[i].vol * tau * half_spread[i]).powi(2)).collect();
+    let mut weight: Vec<f64> = quotes
+        .iter()
+        .map(|q| 1.0 / (2.0 * q.vol * tau * q.half_spread.filter(|h| *h > 0.0).unwrap_or(default_spread)).powi(2))
+        .collect();
     let norm = weight.iter().sum::<f64>() / n as f64;
     weight.iter_mut().for_each(|x| *x /= norm);
     // With the normalised weights, cost * norm is the sum of squared misses in
@@ -709,12 +710,11 @@ pub fn fit_from(
     let first = fit_weighted(&k, &w, &weight, atm_sd, prior, warm.map(|start| (start, good_enough(n))));
     let residual: Vec<f64> =
         (0..n).map(|i| (first.total_variance(k[i]).max(0.0) / tau).sqrt() - quotes[i].vol).collect();
-    let abs_res: Vec<f64> = residual.iter().map(|r| r.abs()).collect();
-    let robust_sd = 1.4826 * median(&abs_res).unwrap_or(0.0);
+    let robust_sd = 1.4826 * median_of(residual.iter().map(|r| r.abs())).unwrap_or(0.0);
     let mut candidates: Vec<(usize, f64)> = (0..n)
         .filter(|&i| {
             let given = quotes[i].half_spread.map_or(0.0, |h| OUTLIER_SIGMAS * h);
-            abs_res[i] > (OUTLIER_SIGMAS * robust_sd).max(given).max(OUTLIER_FLOOR_VOL)
+            residual[i].abs() > (OUTLIER_SIGMAS * robust_sd).max(given).max(OUTLIER_FLOOR_VOL)
         })
         .map(|i| (i, residual[i]))
         .collect();
@@ -735,8 +735,8 @@ pub fn fit_from(
     };
     candidates.sort_by_key(|c| c.0);
     let curve = SmileCurve::Svi(params);
-    let excluded_set: Vec<usize> = candidates.iter().map(|c| c.0).collect();
-    let rmse = rmse_vol(&curve, quotes, tau, (0..n).filter(|i| !excluded_set.contains(i)));
+    // `candidates` is sorted by quote index here.
+    let rmse = rmse_vol(&curve, quotes, tau, (0..n).filter(|i| candidates.binary_search_by_key(i, |c| c.0).is_err()));
     Ok(FittedSmile { curve, rmse_vol: rmse, excluded: candidates, quoted_range: (quotes[0].k, quotes[n - 1].k) })
 }
 
