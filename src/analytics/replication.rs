@@ -364,6 +364,57 @@ mod tests {
         }
     }
 
+    #[test]
+    fn wing_ends_leave_out_nothing_a_far_wider_integral_sees() {
+        // Definition check (MATH.md section 2): the three integrals of otm(k) from
+        // black::otm_price, integrated independently in log-moneyness with the 7/15-point
+        // rule out to twice as far as the wing walk ends, on panels growing 15% at a time
+        // from an eighth of the ATM deviation. Tolerance 1e-12 relative to the variance
+        // swap: both sides are held to 1e-13 and the part beyond the walk's end is below
+        // 3e-15 of it (see WING_END_BISECTIONS).
+        use crate::analytics::black::otm_price;
+        use crate::analytics::quadrature::integrate;
+        let cases = [
+            (SviParams { a: 1.7e-4, b: 0.0124, rho: -0.743, m: 0.0146, sigma: 0.0134 }, 0.0192, (-0.08, 0.06)),
+            (SviParams { a: 0.01, b: 0.08, rho: -0.5, m: 0.05, sigma: 0.15 }, 0.5, (-0.6, 0.6)),
+            (SviParams { a: 0.04, b: 0.2, rho: -0.7, m: 0.1, sigma: 0.3 }, 3.0, (-1.5, 0.8)),
+        ];
+        for (params, tau, quoted) in cases {
+            let curve = SmileCurve::Svi(params);
+            let fast = replicate(&curve, quoted, tau);
+            assert!(fast.converged, "{params:?}");
+            let reach = 2.0 * fast.limits.0.abs().max(fast.limits.1.abs());
+            let first = curve.total_variance(0.0).sqrt() / 8.0;
+            let mut breaks = vec![0.0];
+            let mut x = first;
+            while x < reach * 1.15 {
+                breaks.push(x.min(reach));
+                breaks.push(-x.min(reach));
+                x *= 1.15;
+            }
+            breaks.sort_by(f64::total_cmp);
+            breaks.dedup();
+            let tol = QuadratureTolerance { relative: 1e-14, absolute: 1e-20, max_evaluations: 1_000_000 };
+            let wide = integrate(
+                |k| {
+                    let otm = otm_price(k, curve.total_variance(k));
+                    [otm * (-k).exp(), otm, -otm * (-k).exp_m1()]
+                },
+                &breaks,
+                tol,
+            );
+            let scale = 2.0 / tau;
+            let vs = scale * wide.value[0];
+            for (got, want) in [
+                (fast.levels.variance, vs),
+                (fast.levels.gamma, scale * wide.value[1]),
+                (fast.levels.leverage, scale * wide.value[2]),
+            ] {
+                assert!((got - want).abs() <= 1e-12 * vs, "{params:?}: {got} vs {want}");
+            }
+        }
+    }
+
     /// The same curve without its vertex: replication then runs in log-moneyness.
     struct WithoutVertex<'a>(&'a SmileCurve);
 
