@@ -81,6 +81,9 @@ const WING_END_BISECTIONS: usize = 4;
 fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, first_step: f64) -> (Vec<f64>, bool) {
     // Room for the usual walk (5 to 8 steps) without growing.
     let mut points = Vec::with_capacity(16);
+    // The call at |k| is the call itself, or on the put side the put in units of the
+    // strike: the larger of the two.
+    let below_cutoff = |k: f64| mirrored_call(k, curve.total_variance(k)) < OTM_PRICE_CUTOFF;
     let mut k = start;
     let mut step = first_step;
     loop {
@@ -90,15 +93,13 @@ fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, fi
             return (points, false);
         }
         points.push(k);
-        // The call at |k| is the call itself, or on the put side the put in units
-        // of the strike: the larger of the two.
-        if mirrored_call(k, curve.total_variance(k)) < OTM_PRICE_CUTOFF {
+        if below_cutoff(k) {
             // The crossing lies within the last step; halving it moves the wing's end
             // to within a sixteenth of the step past the crossing (WING_END_BISECTIONS).
             let (mut inside, mut outside) = (k - direction * step, k);
             for _ in 0..WING_END_BISECTIONS {
                 let mid = 0.5 * (inside + outside);
-                if mirrored_call(mid, curve.total_variance(mid)) < OTM_PRICE_CUTOFF {
+                if below_cutoff(mid) {
                     outside = mid;
                 } else {
                     inside = mid;

@@ -223,25 +223,26 @@ pub fn butterfly_scan(
         }
         let mut w = [0.0; BLOCK];
         let mut g = [0.0; BLOCK];
+        // The whole block, also past the last grid point in the last block (a curve is
+        // defined everywhere; those points are not scanned): a fixed trip count is what
+        // lets the loop pair up. One dispatch on the curve's kind per block.
         match curve {
-            SmileCurve::Svi(params) => {
-                for j in 0..BLOCK {
-                    let p = params.point(k[j]);
-                    w[j] = p.w;
-                    g[j] = durrleman_g(k[j], p);
-                }
-            }
-            SmileCurve::Monotone(_) => {
-                for j in 0..count {
-                    let p = curve.point(k[j]);
-                    w[j] = p.w;
-                    g[j] = durrleman_g(k[j], p);
-                }
-            }
+            SmileCurve::Svi(params) => block_g(&k, &mut w, &mut g, |k| params.point(k)),
+            SmileCurve::Monotone(cubic) => block_g(&k, &mut w, &mut g, |k| cubic.point(k)),
         }
         scan_block(&k[..count], &w[..count], &g[..count], tolerance, &mut found);
     }
     found
+}
+
+/// Total variance `w[j]` and Durrleman's `g[j]` at each `k[j]` of a block.
+#[inline(always)]
+fn block_g(k: &[f64], w: &mut [f64], g: &mut [f64], point: impl Fn(f64) -> SmilePoint) {
+    for ((k, w), g) in k.iter().zip(w.iter_mut()).zip(g.iter_mut()) {
+        let p = point(*k);
+        *w = p.w;
+        *g = durrleman_g(*k, p);
+    }
 }
 
 /// Records the points of one block of the butterfly scan where `g < -tolerance` or
