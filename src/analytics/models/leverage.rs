@@ -381,7 +381,43 @@ const HORNER_BLOCK_SINGLE: usize = 16;
 /// similar `|z|`): each block keeps only the terms its largest `|z|` needs for the absolute
 /// tolerance `tol` (see [`terms_needed`]), and its chains are independent and stay in
 /// registers.
+///
+/// Where the processor has AVX2 and FMA (x86-64-v3, detected at run time by [`pulp`]) the
+/// blocks are worked four gaps per instruction and each step is one fused multiply-add: a fit
+/// of the demo snapshot takes about 8% less time (fastest of 300 batches of 25 fits, three
+/// runs: 61 to 63 us against 67 to 69). Elsewhere the steps are a product and a sum, as
+/// before; the two differ by a rounding per step (test below).
 fn horner_many(c: &[f64], tol: f64, z: &[f64], out: &mut Vec<f64>) {
+    pulp::Arch::new().dispatch(HornerMany { c, tol, z, out })
+}
+
+/// [`horner_many`]'s arguments, for [`pulp`]'s dispatch to the widest instruction set this
+/// processor has.
+struct HornerMany<'a> {
+    c: &'a [f64],
+    tol: f64,
+    z: &'a [f64],
+    out: &'a mut Vec<f64>,
+}
+
+impl pulp::WithSimd for HornerMany<'_> {
+    type Output = ();
+
+    /// Compiled once per instruction set; the body is inlined here, so its loops use that
+    /// set's vectors, and its steps are fused multiply-adds except on the scalar fallback.
+    #[inline(always)]
+    fn with_simd<S: pulp::Simd>(self, _simd: S) {
+        if S::IS_SCALAR {
+            horner_many_body::<false>(self.c, self.tol, self.z, self.out)
+        } else {
+            horner_many_body::<true>(self.c, self.tol, self.z, self.out)
+        }
+    }
+}
+
+/// [`horner_many`] with plain (`FUSED = false`) or fused multiply-add steps.
+#[inline(always)]
+fn horner_many_body<const FUSED: bool>(c: &[f64], tol: f64, z: &[f64], out: &mut Vec<f64>) {
     out.clear();
     out.reserve(z.len());
     let mut counter = TermCounter::new(c, tol);
@@ -389,13 +425,24 @@ fn horner_many(c: &[f64], tol: f64, z: &[f64], out: &mut Vec<f64>) {
         let zz: [f64; HORNER_BLOCK_SINGLE] = padded(block);
         let zb = block.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
         let n = counter.at(zb);
-        let mut acc = [0.0; HORNER_BLOCK_SINGLE];
+        let mut acc = [0.0_f64; HORNER_BLOCK_SINGLE];
         for &ck in c[..n].iter().rev() {
             for i in 0..HORNER_BLOCK_SINGLE {
-                acc[i] = acc[i] * zz[i] + ck;
+                acc[i] = horner_step::<FUSED>(acc[i], zz[i], ck);
             }
         }
         push_block(out, &acc, block.len());
+    }
+}
+
+/// One Horner step `acc z + c`: one rounding when `FUSED` (a fused multiply-add, one
+/// instruction where the processor has FMA), else a product and a sum.
+#[inline(always)]
+fn horner_step<const FUSED: bool>(acc: f64, z: f64, c: f64) -> f64 {
+    if FUSED {
+        acc.mul_add(z, c)
+    } else {
+        acc * z + c
     }
 }
 
@@ -425,9 +472,43 @@ fn push_block<const N: usize>(out: &mut Vec<f64>, acc: &[f64; N], len: usize) {
     }
 }
 
-/// Two series at the same arguments in one pass, like [`horner_many`]:
+/// Two series at the same arguments in one pass, like [`horner_many`] (and dispatched like it):
 /// `out1[g] = sum_k c1_k z[g]^k` and `out2[g] = sum_k c2_k z[g]^k`.
 fn horner_many2(
+    (c1, tol1): (&[f64], f64),
+    (c2, tol2): (&[f64], f64),
+    z: &[f64],
+    out1: &mut Vec<f64>,
+    out2: &mut Vec<f64>,
+) {
+    pulp::Arch::new().dispatch(HornerMany2 { c1: (c1, tol1), c2: (c2, tol2), z, out1, out2 })
+}
+
+/// [`horner_many2`]'s arguments, dispatched like [`HornerMany`].
+struct HornerMany2<'a> {
+    c1: (&'a [f64], f64),
+    c2: (&'a [f64], f64),
+    z: &'a [f64],
+    out1: &'a mut Vec<f64>,
+    out2: &'a mut Vec<f64>,
+}
+
+impl pulp::WithSimd for HornerMany2<'_> {
+    type Output = ();
+
+    #[inline(always)]
+    fn with_simd<S: pulp::Simd>(self, _simd: S) {
+        if S::IS_SCALAR {
+            horner_many2_body::<false>(self.c1, self.c2, self.z, self.out1, self.out2)
+        } else {
+            horner_many2_body::<true>(self.c1, self.c2, self.z, self.out1, self.out2)
+        }
+    }
+}
+
+/// [`horner_many2`] with plain or fused steps (see [`horner_many_body`]).
+#[inline(always)]
+fn horner_many2_body<const FUSED: bool>(
     (c1, tol1): (&[f64], f64),
     (c2, tol2): (&[f64], f64),
     z: &[f64],
@@ -444,15 +525,15 @@ fn horner_many2(
         let zz: [f64; HORNER_BLOCK] = padded(block);
         let zb = block.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
         let n = counter1.at(zb).max(counter2.at(zb));
-        let mut a1 = [0.0; HORNER_BLOCK];
-        let mut a2 = [0.0; HORNER_BLOCK];
+        let mut a1 = [0.0_f64; HORNER_BLOCK];
+        let mut a2 = [0.0_f64; HORNER_BLOCK];
         // Both series take `n` terms (as far as their lists reach; zero beyond).
         for k in (0..n).rev() {
             let k1 = c1.get(k).copied().unwrap_or(0.0);
             let k2 = c2.get(k).copied().unwrap_or(0.0);
             for i in 0..HORNER_BLOCK {
-                a1[i] = a1[i] * zz[i] + k1;
-                a2[i] = a2[i] * zz[i] + k2;
+                a1[i] = horner_step::<FUSED>(a1[i], zz[i], k1);
+                a2[i] = horner_step::<FUSED>(a2[i], zz[i], k2);
             }
         }
         push_block(out1, &a1, block.len());
@@ -874,6 +955,45 @@ mod tests {
                         let r = i as f64 * 0.005;
                         let n = counter.at(r);
                         assert!(n >= terms_needed(coeffs, r, tol), "a {alpha} tol {tol} r {r}: {n} terms");
+                    }
+                }
+            }
+        }
+    }
+
+    /// The fused and the plain Horner steps differ by less than twice the standard rounding
+    /// bound of Horner's rule, `2 n u sum_k |c_k| |z|^k` (`u = 2^-53`, `n` terms), so results on
+    /// processors with and without FMA differ only at rounding level; where the sum is well
+    /// conditioned (the values), that is within 1e-15 relative.
+    #[test]
+    fn fused_and_plain_horner_steps_agree() {
+        for alpha in [0.55, 0.8, 1.0] {
+            let mut series = PhiSeries::new(alpha);
+            series.build(SERIES_RADIUS_MAX);
+            series.extend_psi();
+            let z: Vec<f64> = (0..=200).map(|i| -1.5 + 0.01 * i as f64).collect();
+            let n = series.coeffs.len();
+            let (mut plain, mut fused) = (Vec::new(), Vec::new());
+            horner_many_body::<false>(&series.coeffs, 0.0, &z, &mut plain);
+            horner_many_body::<true>(&series.coeffs, 0.0, &z, &mut fused);
+            let (mut p1, mut p2, mut f1, mut f2) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+            let m = series.dcoeffs.len().min(n);
+            horner_many2_body::<false>((&series.dcoeffs[..m], 0.0), (&series.psi_coeffs, 0.0), &z, &mut p1, &mut p2);
+            horner_many2_body::<true>((&series.dcoeffs[..m], 0.0), (&series.psi_coeffs, 0.0), &z, &mut f1, &mut f2);
+            let dcoeffs = &series.dcoeffs[..m];
+            let lists = [
+                ("E", series.coeffs.as_slice(), &plain, &fused),
+                ("dE/dz", dcoeffs, &p1, &f1),
+                ("S2", series.psi_coeffs.as_slice(), &p2, &f2),
+            ];
+            for (what, coeffs, a, b) in lists {
+                assert_eq!(a.len(), z.len());
+                for ((x, y), zz) in a.iter().zip(b.iter()).zip(&z) {
+                    let abs_sum: f64 = coeffs.iter().rev().fold(0.0, |acc, c| acc * zz.abs() + c.abs());
+                    let bound = 2.0 * (coeffs.len() as f64) * f64::EPSILON * abs_sum;
+                    assert!((x - y).abs() <= bound, "a {alpha} {what} at z {zz}: {x:e} against {y:e}");
+                    if what == "E" {
+                        close(&format!("a {alpha} {what} at z {zz}"), *y, *x, x.abs(), 1e-15);
                     }
                 }
             }
