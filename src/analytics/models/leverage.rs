@@ -335,9 +335,28 @@ const GAP_MERGE_REL: f64 = 4e-15;
 /// The distinct values of `pair_gaps` (positive), ascending, merging those within
 /// [`GAP_MERGE_REL`] of the smallest of their run, and for each pair the index of its value.
 fn distinct_gaps(pair_gaps: &[f64]) -> (Vec<f64>, Vec<u32>) {
-    // positive doubles sort like their bit patterns
-    let mut by_size: Vec<u32> = (0..pair_gaps.len() as u32).collect();
-    by_size.sort_unstable_by_key(|&p| pair_gaps[p as usize].to_bits());
+    // Positive doubles sort like their bit patterns. Each key is the gap's pattern with its
+    // lowest bits replaced by the pair's index, so that a plain sort of integers orders the
+    // pairs: a quarter faster than sorting indices by a looked-up key (measured on the demo
+    // snapshot's 630 pairs, 4.4 against 6.0 us), and 8% of a fit's instructions went to that
+    // sort. Gaps that differ only in the replaced bits (within `2^(bits - 52)` relative of
+    // each other, rounding twins or exact ties in practice) may come out in index order; one
+    // insertion pass on the exact values restores their order, moving only those.
+    let bits = usize::BITS - (pair_gaps.len().max(2) - 1).leading_zeros();
+    let mask = (1u64 << bits) - 1;
+    let mut keys: Vec<u64> = pair_gaps.iter().enumerate().map(|(p, g)| (g.to_bits() & !mask) | p as u64).collect();
+    keys.sort_unstable();
+    let mut by_size: Vec<u32> = keys.iter().map(|k| (k & mask) as u32).collect();
+    for i in 1..by_size.len() {
+        let pair = by_size[i];
+        let gap = pair_gaps[pair as usize];
+        let mut j = i;
+        while j > 0 && pair_gaps[by_size[j - 1] as usize] > gap {
+            by_size[j] = by_size[j - 1];
+            j -= 1;
+        }
+        by_size[j] = pair;
+    }
     let mut gaps: Vec<f64> = Vec::with_capacity(pair_gaps.len());
     let mut gap_of_pair = vec![0u32; pair_gaps.len()];
     for p in by_size {
@@ -364,6 +383,29 @@ fn dot_gather(a: &[f64], b: &[f64], index: &[u32]) -> f64 {
     }
     let tail: f64 = ca.remainder().iter().zip(ci.remainder()).map(|(x, &k)| x * b[k as usize]).sum();
     (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
+}
+
+/// [`dot_gather`] of three value lists at once, `[sum_j a_j b0[index_j], .. b1 .., .. b2 ..]`,
+/// each summed exactly as `dot_gather` sums it (so bit-identical to three calls), with the
+/// weights and indices read once.
+fn dot_gather3(a: &[f64], b: [&[f64]; 3], index: &[u32]) -> [f64; 3] {
+    let mut acc = [[0.0; 4]; 3];
+    let mut ca = a.chunks_exact(4);
+    let mut ci = index.chunks_exact(4);
+    for (x, k) in (&mut ca).zip(&mut ci) {
+        for i in 0..4 {
+            let g = k[i] as usize;
+            for (acc, b) in acc.iter_mut().zip(b) {
+                acc[i] += x[i] * b[g];
+            }
+        }
+    }
+    let (ra, ri) = (ca.remainder(), ci.remainder());
+    std::array::from_fn(|m| {
+        let tail: f64 = ra.iter().zip(ri).map(|(x, &k)| x * b[m][k as usize]).sum();
+        let acc = acc[m];
+        (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
+    })
 }
 
 /// Gaps per block of the batched Horner sums of two series: the accumulators and arguments
@@ -830,12 +872,20 @@ impl LeverageCurve {
         let mu = params.mean_reversion - c;
         let mut phi = self.last.borrow_mut();
         self.phi_over_c(alpha, mu, true, Accuracy::Full, &mut phi)?;
-        let value = self.assemble(&phi.value);
-        let d_mu = self.assemble(&phi.d_mu);
-        let d_alpha = self.assemble(&phi.d_alpha);
-        let total = value.iter().map(|l| c * l).collect();
-        // dPhi/dc = Phi/c + c dPhi/dmu * dmu/dc (dmu/dc = -1); dPhi/dlambda = c dPhi/dmu.
-        let gradient = (0..value.len()).map(|i| [c * d_alpha[i], value[i] - c * d_mu[i], c * d_mu[i]]).collect();
+        let n = self.taus.len();
+        let mut total = Vec::with_capacity(n);
+        let mut gradient = Vec::with_capacity(n);
+        for i in 0..n {
+            let row = i * (i + 1) / 2;
+            let [value, d_mu, d_alpha] = dot_gather3(
+                &self.weights[..=i],
+                [&phi.value, &phi.d_mu, &phi.d_alpha],
+                &self.gap_of_pair[row..=row + i],
+            );
+            total.push(c * value);
+            // dPhi/dc = Phi/c + c dPhi/dmu * dmu/dc (dmu/dc = -1); dPhi/dlambda = c dPhi/dmu.
+            gradient.push([c * d_alpha, value - c * d_mu, c * d_mu]);
+        }
         Ok(LeverageWithGradient { total, gradient })
     }
 }
@@ -997,6 +1047,49 @@ mod tests {
                     }
                 }
             }
+        }
+    }
+
+    /// The packed-key sort gives the same distinct gaps and pair indices as sorting the pairs
+    /// by their exact values, also with exact ties, rounding twins and gaps that differ only
+    /// in the bits the keys give to the index.
+    #[test]
+    fn distinct_gaps_match_a_sort_by_exact_value() {
+        let reference = |pair_gaps: &[f64]| {
+            let mut by_size: Vec<u32> = (0..pair_gaps.len() as u32).collect();
+            by_size.sort_by(|&a, &b| pair_gaps[a as usize].total_cmp(&pair_gaps[b as usize]));
+            let mut gaps: Vec<f64> = Vec::new();
+            let mut gap_of_pair = vec![0u32; pair_gaps.len()];
+            for p in by_size {
+                let t = pair_gaps[p as usize];
+                match gaps.last() {
+                    Some(&last) if t - last <= GAP_MERGE_REL * t => {}
+                    _ => gaps.push(t),
+                }
+                gap_of_pair[p as usize] = (gaps.len() - 1) as u32;
+            }
+            (gaps, gap_of_pair)
+        };
+        // calendar-like expiries (many shared gaps), then the same with ulp-level noise, then
+        // values crowded within a few hundred ulps of each other (below the packed keys' bits)
+        let days = [7.0, 14.0, 21.0, 28.0, 35.0, 63.0, 91.0, 119.0, 182.0, 273.0, 364.0, 546.0, 728.0, 1092.0];
+        let taus: Vec<f64> = days.iter().map(|d| (d + 0.27) / 365.0).collect();
+        let pairs = |taus: &[f64]| -> Vec<f64> {
+            let mut v = Vec::new();
+            for i in 0..taus.len() {
+                for j in 0..=i {
+                    v.push(taus[i] - if j == 0 { 0.0 } else { taus[j - 1] });
+                }
+            }
+            v
+        };
+        let mut cases = vec![pairs(&taus)];
+        let noisy: Vec<f64> = cases[0].iter().enumerate().map(|(k, g)| g * (1.0 + (k % 7) as f64 * 1e-16)).collect();
+        cases.push(noisy);
+        let crowded: Vec<f64> = (0..300).map(|k| 0.5 + ((k * 37) % 301) as f64 * 1e-14).collect();
+        cases.push(crowded);
+        for (c, pair_gaps) in cases.iter().enumerate() {
+            assert_eq!(distinct_gaps(pair_gaps), reference(pair_gaps), "case {c}");
         }
     }
 
