@@ -430,11 +430,34 @@ const HORNER_BLOCK_SINGLE: usize = 16;
 /// runs: 61 to 63 us against 67 to 69). Elsewhere the steps are a product and a sum, as
 /// before; the two differ by a rounding per step (test below).
 fn horner_many(c: &[f64], tol: f64, z: &[f64], out: &mut Vec<f64>) {
-    pulp::Arch::new().dispatch(HornerMany { c, tol, z, out })
+    pulp::Arch::new().dispatch(Dispatched(HornerMany { c, tol, z, out }))
 }
 
-/// [`horner_many`]'s arguments, for [`pulp`]'s dispatch to the widest instruction set this
-/// processor has.
+/// A computation with plain (`FUSED = false`) or fused multiply-add steps, for
+/// [`Dispatched`].
+trait FusableSteps {
+    fn run<const FUSED: bool>(self);
+}
+
+/// Runs a [`FusableSteps`] under [`pulp`]'s dispatch to the widest instruction set this
+/// processor has: compiled once per set, with the computation inlined, so its loops use that
+/// set's vectors; its steps are fused except on the scalar fallback.
+struct Dispatched<T>(T);
+
+impl<T: FusableSteps> pulp::WithSimd for Dispatched<T> {
+    type Output = ();
+
+    #[inline(always)]
+    fn with_simd<S: pulp::Simd>(self, _simd: S) {
+        if S::IS_SCALAR {
+            self.0.run::<false>()
+        } else {
+            self.0.run::<true>()
+        }
+    }
+}
+
+/// [`horner_many`]'s arguments.
 struct HornerMany<'a> {
     c: &'a [f64],
     tol: f64,
@@ -442,18 +465,10 @@ struct HornerMany<'a> {
     out: &'a mut Vec<f64>,
 }
 
-impl pulp::WithSimd for HornerMany<'_> {
-    type Output = ();
-
-    /// Compiled once per instruction set; the body is inlined here, so its loops use that
-    /// set's vectors, and its steps are fused multiply-adds except on the scalar fallback.
+impl FusableSteps for HornerMany<'_> {
     #[inline(always)]
-    fn with_simd<S: pulp::Simd>(self, _simd: S) {
-        if S::IS_SCALAR {
-            horner_many_body::<false>(self.c, self.tol, self.z, self.out)
-        } else {
-            horner_many_body::<true>(self.c, self.tol, self.z, self.out)
-        }
+    fn run<const FUSED: bool>(self) {
+        horner_many_body::<FUSED>(self.c, self.tol, self.z, self.out)
     }
 }
 
@@ -523,10 +538,10 @@ fn horner_many2(
     out1: &mut Vec<f64>,
     out2: &mut Vec<f64>,
 ) {
-    pulp::Arch::new().dispatch(HornerMany2 { c1: (c1, tol1), c2: (c2, tol2), z, out1, out2 })
+    pulp::Arch::new().dispatch(Dispatched(HornerMany2 { c1: (c1, tol1), c2: (c2, tol2), z, out1, out2 }))
 }
 
-/// [`horner_many2`]'s arguments, dispatched like [`HornerMany`].
+/// [`horner_many2`]'s arguments.
 struct HornerMany2<'a> {
     c1: (&'a [f64], f64),
     c2: (&'a [f64], f64),
@@ -535,16 +550,10 @@ struct HornerMany2<'a> {
     out2: &'a mut Vec<f64>,
 }
 
-impl pulp::WithSimd for HornerMany2<'_> {
-    type Output = ();
-
+impl FusableSteps for HornerMany2<'_> {
     #[inline(always)]
-    fn with_simd<S: pulp::Simd>(self, _simd: S) {
-        if S::IS_SCALAR {
-            horner_many2_body::<false>(self.c1, self.c2, self.z, self.out1, self.out2)
-        } else {
-            horner_many2_body::<true>(self.c1, self.c2, self.z, self.out1, self.out2)
-        }
+    fn run<const FUSED: bool>(self) {
+        horner_many2_body::<FUSED>(self.c1, self.c2, self.z, self.out1, self.out2)
     }
 }
 
