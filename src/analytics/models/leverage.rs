@@ -357,9 +357,15 @@ fn distinct_gaps(pair_gaps: &[f64]) -> (Vec<f64>, Vec<u32>) {
         }
         by_size[j] = pair;
     }
+    merge_sorted_gaps(pair_gaps, &by_size)
+}
+
+/// The distinct gaps and each pair's index among them, from the pairs `by_size` in ascending
+/// order of their gaps (see [`distinct_gaps`]).
+fn merge_sorted_gaps(pair_gaps: &[f64], by_size: &[u32]) -> (Vec<f64>, Vec<u32>) {
     let mut gaps: Vec<f64> = Vec::with_capacity(pair_gaps.len());
     let mut gap_of_pair = vec![0u32; pair_gaps.len()];
-    for p in by_size {
+    for &p in by_size {
         let t = pair_gaps[p as usize];
         match gaps.last() {
             Some(&last) if t - last <= GAP_MERGE_REL * t => {}
@@ -1067,17 +1073,7 @@ mod tests {
         let reference = |pair_gaps: &[f64]| {
             let mut by_size: Vec<u32> = (0..pair_gaps.len() as u32).collect();
             by_size.sort_by(|&a, &b| pair_gaps[a as usize].total_cmp(&pair_gaps[b as usize]));
-            let mut gaps: Vec<f64> = Vec::new();
-            let mut gap_of_pair = vec![0u32; pair_gaps.len()];
-            for p in by_size {
-                let t = pair_gaps[p as usize];
-                match gaps.last() {
-                    Some(&last) if t - last <= GAP_MERGE_REL * t => {}
-                    _ => gaps.push(t),
-                }
-                gap_of_pair[p as usize] = (gaps.len() - 1) as u32;
-            }
-            (gaps, gap_of_pair)
+            merge_sorted_gaps(pair_gaps, &by_size)
         };
         // calendar-like expiries (many shared gaps), then the same with ulp-level noise, then
         // values crowded within a few hundred ulps of each other (below the packed keys' bits)
