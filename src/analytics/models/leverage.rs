@@ -88,8 +88,9 @@ const PHI_MIN_BUILD_RADIUS: f64 = 0.25;
 
 /// Condition-number limit of the value series when only ranking start points
 /// ([`LeverageCurve::total_leverage_for_start`]): rounding then costs at most about
-/// `1e4 * 1.3e-13 = 1.3e-9` relative (the coefficients `exp(-lgamma)` carry up to 1.3e-13,
-/// measured in the Mittag-Leffler module), far below the differences between start points.
+/// `1e4 * 4e-14 = 4e-10` relative (the series coefficients carry up to 4e-14, measured
+/// against mpmath in the Mittag-Leffler module's tests), far below the differences between
+/// start points.
 const START_SERIES_COND_MAX: f64 = 1e4;
 
 /// Largest `|z|` summed by series when ranking start points: the start grid's largest `|z|`
@@ -376,26 +377,12 @@ fn merge_sorted_gaps(pair_gaps: &[f64], by_size: &[u32]) -> (Vec<f64>, Vec<u32>)
     (gaps, gap_of_pair)
 }
 
-/// `sum_j a_j b[index_j]` with four partial sums (independent chains; the order of rounding
-/// differs from a plain left-to-right sum only at the level of `2^-53 sum |a_j b_j|`).
-fn dot_gather(a: &[f64], b: &[f64], index: &[u32]) -> f64 {
-    let mut acc = [0.0; 4];
-    let mut ca = a.chunks_exact(4);
-    let mut ci = index.chunks_exact(4);
-    for (x, k) in (&mut ca).zip(&mut ci) {
-        for i in 0..4 {
-            acc[i] += x[i] * b[k[i] as usize];
-        }
-    }
-    let tail: f64 = ca.remainder().iter().zip(ci.remainder()).map(|(x, &k)| x * b[k as usize]).sum();
-    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
-}
-
-/// [`dot_gather`] of three value lists at once, `[sum_j a_j b0[index_j], .. b1 .., .. b2 ..]`,
-/// each summed exactly as `dot_gather` sums it (so bit-identical to three calls), with the
-/// weights and indices read once.
-fn dot_gather3(a: &[f64], b: [&[f64]; 3], index: &[u32]) -> [f64; 3] {
-    let mut acc = [[0.0; 4]; 3];
+/// `sum_j a_j b[m][index_j]` for each of the `M` value lists `b[m]`, with four partial sums
+/// per list (independent chains; the order of rounding differs from a plain left-to-right
+/// sum only at the level of `2^-53 sum |a_j b_j|`). The weights and indices are read once
+/// for all lists (the Jacobian sums values and two derivatives over the same pairs).
+fn dot_gather<const M: usize>(a: &[f64], b: [&[f64]; M], index: &[u32]) -> [f64; M] {
+    let mut acc = [[0.0; 4]; M];
     let mut ca = a.chunks_exact(4);
     let mut ci = index.chunks_exact(4);
     for (x, k) in (&mut ca).zip(&mut ci) {
@@ -828,7 +815,7 @@ impl LeverageCurve {
         (0..self.taus.len())
             .map(|i| {
                 let row = i * (i + 1) / 2;
-                dot_gather(&self.weights[..=i], values, &self.gap_of_pair[row..=row + i])
+                dot_gather(&self.weights[..=i], [values], &self.gap_of_pair[row..=row + i])[0]
             })
             .collect()
     }
@@ -892,7 +879,7 @@ impl LeverageCurve {
         let mut gradient = Vec::with_capacity(n);
         for i in 0..n {
             let row = i * (i + 1) / 2;
-            let [value, d_mu, d_alpha] = dot_gather3(
+            let [value, d_mu, d_alpha] = dot_gather(
                 &self.weights[..=i],
                 [&phi.value, &phi.d_mu, &phi.d_alpha],
                 &self.gap_of_pair[row..=row + i],
@@ -1037,18 +1024,15 @@ mod tests {
             series.build(SERIES_RADIUS_MAX);
             series.extend_psi();
             let z: Vec<f64> = (0..=200).map(|i| -1.5 + 0.01 * i as f64).collect();
-            let n = series.coeffs.len();
             let (mut plain, mut fused) = (Vec::new(), Vec::new());
             horner_many_body::<false>(&series.coeffs, 0.0, &z, &mut plain);
             horner_many_body::<true>(&series.coeffs, 0.0, &z, &mut fused);
             let (mut p1, mut p2, mut f1, mut f2) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
-            let m = series.dcoeffs.len().min(n);
-            horner_many2_body::<false>((&series.dcoeffs[..m], 0.0), (&series.psi_coeffs, 0.0), &z, &mut p1, &mut p2);
-            horner_many2_body::<true>((&series.dcoeffs[..m], 0.0), (&series.psi_coeffs, 0.0), &z, &mut f1, &mut f2);
-            let dcoeffs = &series.dcoeffs[..m];
+            horner_many2_body::<false>((&series.dcoeffs, 0.0), (&series.psi_coeffs, 0.0), &z, &mut p1, &mut p2);
+            horner_many2_body::<true>((&series.dcoeffs, 0.0), (&series.psi_coeffs, 0.0), &z, &mut f1, &mut f2);
             let lists = [
                 ("E", series.coeffs.as_slice(), &plain, &fused),
-                ("dE/dz", dcoeffs, &p1, &f1),
+                ("dE/dz", series.dcoeffs.as_slice(), &p1, &f1),
                 ("S2", series.psi_coeffs.as_slice(), &p2, &f2),
             ];
             for (what, coeffs, a, b) in lists {
