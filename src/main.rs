@@ -38,6 +38,9 @@ enum Command {
         /// Snapshot file, JSON or CSV.
         #[arg(long)]
         snapshot: PathBuf,
+        /// An earlier snapshot file: also explain each position's change of value since it.
+        #[arg(long)]
+        since: Option<PathBuf>,
         #[command(flatten)]
         snapshot_flags: cli::SnapshotFlags,
         /// Indent the JSON output.
@@ -91,8 +94,8 @@ fn main() -> ExitCode {
         Command::Analyze { input, snapshot, svg, pretty } => {
             cli::run_analyze(&input, &snapshot, svg.as_deref(), pretty, &mut stdout)
         }
-        Command::Value { book, snapshot, snapshot_flags, pretty } => {
-            cli::run_value(&book, &snapshot, &snapshot_flags, pretty, &mut stdout)
+        Command::Value { book, snapshot, since, snapshot_flags, pretty } => {
+            cli::run_value(&book, &snapshot, since.as_deref(), &snapshot_flags, pretty, &mut stdout)
         }
         Command::Realized { closes, annualization, pretty } => {
             cli::run_realized(&closes, annualization, pretty, &mut stdout)

@@ -181,12 +181,43 @@ fn value_the_demo_book() {
     let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
     let positions = doc["positions"].as_array().expect("positions");
     assert_eq!(positions.len(), 5);
-    let total: f64 = positions.iter().map(|p| p["value"].as_f64().expect("value")).sum();
+    let total: f64 = positions.iter().filter_map(|p| p["value"].as_f64()).sum();
     let book = doc["totals"]["book"]["value"].as_f64().expect("book value");
     assert!((total - book).abs() <= 1e-9 * book.abs().max(1.0), "{total} vs {book}");
-    let expired = positions.iter().find(|p| p["id"] == "VS-2025-118").expect("expired position");
-    // Hand-computed: N (RV - K) = 1e6 (0.0429 - 0.04) = 2900 (D = 1 once paid).
-    assert!((expired["value"].as_f64().expect("value") - 2900.0).abs() < 1e-6, "{expired}");
+    let matured = positions.iter().find(|p| p["id"] == "VS-2025-118").expect("matured position");
+    assert_eq!(matured["status"], "matured");
+    // Hand-computed: N_var (RV - K^2) = 2,500 (429 - 400) = 72,500 in vol points, unpaid
+    // so undiscounted, and not part of the value total.
+    assert!((matured["settlement"].as_f64().expect("settlement") - 72500.0).abs() < 1e-6, "{matured}");
+    assert!(matured.get("value").is_none());
+    let settled = doc["totals"]["book"]["settlement"].as_f64().expect("settlement total");
+    assert!((settled - 72500.0).abs() < 1e-6);
+}
+
+#[test]
+fn value_with_since_explains_the_change_of_the_demo_day() {
+    let out = logstrip(
+        &[
+            "value",
+            "--book",
+            "demo-data/kestrel50-book.json",
+            "--snapshot",
+            "demo-data/day/kestrel50-2026-11-30T1530.json",
+            "--since",
+            "demo-data/day/kestrel50-2026-11-30T0930.json",
+        ],
+        None,
+    );
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
+    let book = &doc["explain"]["book"];
+    let change = book["change"].as_f64().expect("change");
+    let parts: f64 = ["realized_accrual", "time_decay", "spot", "vega", "discounting", "unexplained"]
+        .iter()
+        .map(|f| book[f].as_f64().expect("part"))
+        .sum();
+    assert!((parts - change).abs() <= 1e-9 * change.abs().max(1.0), "{parts} vs {change}");
+    assert_eq!(doc["explain"]["since_as_of"], "2026-11-30T09:30:00Z");
 }
 
 #[test]

@@ -13,6 +13,7 @@ pub mod calibrate;
 pub mod kronrod_table;
 pub mod levenberg;
 pub mod models;
+pub mod observations;
 pub mod quadrature;
 pub mod realized;
 pub mod replication;

@@ -250,6 +250,8 @@ fn add_header_examples(openapi: &mut utoipa::openapi::OpenApi) {
         super::risk::ValuationRequest, valuation::PositionDoc, valuation::RealizedDoc, valuation::KindDoc,
         valuation::SideDoc, valuation::ClosesDoc, valuation::RealizedOutDoc, valuation::ValuationDoc,
         valuation::PositionValueDoc, valuation::VegaBucketDoc, valuation::TotalsDoc, valuation::TotalDoc,
+        valuation::LifecycleDoc, valuation::ConventionsDoc, valuation::ExplainDoc, valuation::PositionExplainDoc,
+        valuation::ExplainPartsDoc, valuation::ExpiryMoveDoc, valuation::SkippedDoc,
         StoredAnalysisDoc, UnderlyingsDoc, UnderlyingDoc, StatusDoc,
         HistoryPage, HistoryItem, HistoryFit, HistoryPoint,
         ProblemDetails, FieldProblem

@@ -25,6 +25,17 @@ pub struct ValuationRequest {
     /// Id of a stored snapshot (or give `snapshot`).
     #[serde(default)]
     pub snapshot_id: Option<i64>,
+    /// An earlier snapshot (or give `since_snapshot_id`): the response then explains each
+    /// position's change of value since it (`explain`).
+    #[serde(default)]
+    #[schema(value_type = Option<crate::wire::input::SnapshotDoc>)]
+    pub since_snapshot: Option<serde_json::Value>,
+    /// Id of a stored earlier snapshot (or give `since_snapshot`).
+    #[serde(default)]
+    pub since_snapshot_id: Option<i64>,
+    /// Dates (`YYYY-MM-DD`) without an observation besides weekends.
+    #[serde(default)]
+    pub holidays: Option<Vec<String>>,
     /// The positions.
     #[serde(deserialize_with = "crate::wire::strict::objects")]
     pub positions: Vec<PositionDoc>,
@@ -44,30 +55,36 @@ pub fn valuation_example() -> serde_json::Value {
     })
 }
 
+/// The text, format and field path of a snapshot given inline (`inline`) or by the id
+/// of a stored one; `None` when neither is given and `required` is false.
 async fn valuation_snapshot(
     state: &AppState,
-    request: &ValuationRequest,
-) -> Result<(String, SnapshotFormat, FieldPath), ApiError> {
+    inline: Option<&serde_json::Value>,
+    id: Option<i64>,
+    (field, id_field): (&str, &str),
+    required: bool,
+) -> Result<Option<(String, SnapshotFormat, FieldPath)>, ApiError> {
     let root = FieldPath::root();
-    match (&request.snapshot, request.snapshot_id) {
+    match (inline, id) {
         (Some(_), Some(_)) => {
-            Err(InputErrors::one(root.field("snapshot_id"), "give snapshot or snapshot_id, not both").into())
+            Err(InputErrors::one(root.field(id_field), format!("give {field} or {id_field}, not both")).into())
         }
-        (None, None) => Err(InputErrors::one(root.field("snapshot"), "give snapshot or snapshot_id").into()),
-        (Some(doc), None) => Ok((doc.to_string(), SnapshotFormat::Json, root.field("snapshot"))),
+        (None, None) if required => {
+            Err(InputErrors::one(root.field(field), format!("give {field} or {id_field}")).into())
+        }
+        (None, None) => Ok(None),
+        (Some(doc), None) => Ok(Some((doc.to_string(), SnapshotFormat::Json, root.field(field)))),
         (None, Some(id)) => {
             let stored = state.store().get(id, true).await.map_err(|e| {
                 state.metrics().store_error("get");
                 ApiError::from(e)
             })?;
             let Some((media_type, text)) = stored.and_then(|s| s.input) else {
-                return Err(
-                    InputErrors::one(root.field("snapshot_id"), format!("no stored snapshot with id {id}")).into()
-                );
+                return Err(InputErrors::one(root.field(id_field), format!("no stored snapshot with id {id}")).into());
             };
             let format = SnapshotFormat::from_media_type(&media_type)
                 .ok_or_else(|| ApiError::Internal(format!("stored snapshot {id} has media type {media_type:?}")))?;
-            Ok((text, format, root.field("snapshot")))
+            Ok(Some((text, format, root.field(field))))
         }
     }
 }
@@ -95,12 +112,24 @@ pub async fn post_valuation(
     JsonText(text): JsonText,
 ) -> Result<Json<ValuationDoc>, ApiError> {
     let request: ValuationRequest = parse_json(&text)?;
-    let (snapshot_text, format, prefix) = valuation_snapshot(&state, &request).await?;
-    let book = BookDoc { positions: request.positions };
+    let names = ("snapshot", "snapshot_id");
+    let current = valuation_snapshot(&state, request.snapshot.as_ref(), request.snapshot_id, names, true).await?;
+    let since_names = ("since_snapshot", "since_snapshot_id");
+    let since =
+        valuation_snapshot(&state, request.since_snapshot.as_ref(), request.since_snapshot_id, since_names, false)
+            .await?;
+    let book = BookDoc { holidays: request.holidays, positions: request.positions };
     let doc = tokio::task::spawn_blocking(move || -> Result<ValuationDoc, InputErrors> {
-        let parsed = wire::parse_snapshot_as(&snapshot_text, &format).map_err(|e| e.within(&prefix))?;
-        let (snapshot, analysis) = wire::analyze_valid(parsed).map_err(|e| e.within(&prefix))?;
-        valuation::value_book(&snapshot, &analysis, &book)
+        let analyse = |(text, format, prefix): (String, SnapshotFormat, FieldPath)| {
+            let parsed = wire::parse_snapshot_as(&text, &format).map_err(|e| e.within(&prefix))?;
+            wire::analyze_valid(parsed).map_err(|e| e.within(&prefix))
+        };
+        let (snapshot, analysis) = match current {
+            Some(given) => analyse(given)?,
+            None => return Err(InputErrors::one(FieldPath::root().field("snapshot"), "give snapshot or snapshot_id")),
+        };
+        let earlier = since.map(analyse).transpose()?;
+        valuation::value_book(&snapshot, &analysis, &book, earlier.as_ref().map(|(s, a)| (s, a)))
     })
     .await
     .map_err(|e| ApiError::Internal(format!("valuation task failed: {e}")))??;

@@ -163,7 +163,8 @@ fn term_points(doc: &output::AnalysisDoc) -> Vec<crate::charts::TermPoint> {
         .collect()
 }
 
-/// `logstrip value`: a book of swaps valued against a snapshot, with vega by expiry.
+/// `logstrip value`: a book of swaps valued against a snapshot, with vega by expiry, and
+/// with `since` (an earlier snapshot) the P&L explanation of each position.
 ///
 /// # Errors
 /// [`CliError`] for unreadable or invalid input (a maturity beyond the last expiry
@@ -171,13 +172,16 @@ fn term_points(doc: &output::AnalysisDoc) -> Vec<crate::charts::TermPoint> {
 pub fn run_value(
     book: &Path,
     snapshot: &Path,
+    since: Option<&Path>,
     flags: &SnapshotFlags,
     pretty: bool,
     out: &mut dyn Write,
 ) -> Result<(), CliError> {
     let book_doc: BookDoc = wire::input::parse_json(&read_input(book)?)?;
     let (snapshot, analysis) = analyze_file(snapshot, flags)?;
-    write_json(&valuation::value_book(&snapshot, &analysis, &book_doc)?, pretty, out)
+    let earlier = since.map(|path| analyze_file(path, flags)).transpose()?;
+    let doc = valuation::value_book(&snapshot, &analysis, &book_doc, earlier.as_ref().map(|(s, a)| (s, a)))?;
+    write_json(&doc, pretty, out)
 }
 
 /// `logstrip realized`: realized and gamma-weighted realized variance from closes in a

@@ -135,33 +135,6 @@ impl SmileShape for SmileCurve {
     }
 }
 
-/// A smile with every implied vol moved by `shift` (decimal: 0.01 is one vol point):
-/// `w(k) = (sqrt(w_base(k) / tau) + shift)^2 tau`. This is the bump of bucketed vega;
-/// shifting the fitted curve, not refitting shifted quotes, keeps the bump exact and
-/// free of fit noise.
-#[derive(Debug, Clone, Copy)]
-pub struct VolShifted<'a> {
-    /// The fitted smile.
-    pub base: &'a SmileCurve,
-    /// Vol shift, decimal.
-    pub shift: f64,
-    /// Time to expiry, years.
-    pub tau: f64,
-}
-
-impl SmileShape for VolShifted<'_> {
-    fn total_variance(&self, k: f64) -> f64 {
-        let vol = (self.base.total_variance(k).max(0.0) / self.tau).sqrt() + self.shift;
-        vol.max(0.0).powi(2) * self.tau
-    }
-    fn kinks(&self) -> &[f64] {
-        self.base.kinks()
-    }
-    fn vertex(&self) -> Option<(f64, f64)> {
-        self.base.vertex()
-    }
-}
-
 /// A smile fitted to one slice, with what the fit says about the quotes.
 #[derive(Debug, Clone, PartialEq)]
 pub struct FittedSmile {
