@@ -72,6 +72,33 @@ async fn valuation_errors_point_at_the_field() {
 }
 
 #[tokio::test]
+async fn caps_are_refused_and_an_earlier_stored_snapshot_explains_the_change() {
+    let server = start_sqlite(open_settings()).await;
+    let mut capped = valuation_example();
+    capped["positions"][0]["cap_multiple"] = json!(2.5);
+    let pointers = problem_pointers(post_json(&server, "/v1/valuations", capped.to_string()).await).await;
+    assert_eq!(pointers, vec!["/positions/0/cap_multiple"]);
+
+    // The same snapshot stored as the earlier one: nothing moved, every part is zero
+    // and the change is exactly zero.
+    let stored: Value = post_json(&server, "/v1/snapshots", snapshot_example().to_string()).await.json().await.unwrap();
+    let mut since = valuation_example();
+    since["since_snapshot_id"] = stored["id"].clone();
+    let response = post_json(&server, "/v1/valuations", since.to_string()).await;
+    assert_eq!(response.status(), StatusCode::OK);
+    let doc: Value = response.json().await.unwrap();
+    let explain = &doc["explain"];
+    assert_eq!(explain["positions"].as_array().unwrap().len(), 2, "{explain}");
+    for part in ["change", "realized_accrual", "time_decay", "vega", "discounting", "unexplained"] {
+        assert!(explain["book"][part].as_f64().unwrap().abs() < 1e-9, "{part}: {explain}");
+    }
+    assert_eq!(doc["conventions"]["variance_notional_unit"], "currency per vol point squared");
+    since["since_snapshot"] = snapshot_example();
+    let pointers = problem_pointers(post_json(&server, "/v1/valuations", since.to_string()).await).await;
+    assert_eq!(pointers, vec!["/since_snapshot_id"]);
+}
+
+#[tokio::test]
 async fn realized_variance_and_gaps() {
     let server = start_sqlite(open_settings()).await;
     let ok = post_json(&server, "/v1/realized", json!({"closes": [100.0, 110.0, 99.0]}).to_string()).await;

@@ -45,12 +45,13 @@ pub struct ValuationRequest {
 pub fn valuation_example() -> serde_json::Value {
     serde_json::json!({
         "snapshot": super::docs::snapshot_example(),
+        "holidays": ["2026-12-25", "2027-01-01"],
         "positions": [
             {"id": "VS-0142", "kind": "variance", "start": "2026-09-30T21:00:00Z", "maturity": "2027-06-18T21:00:00Z",
              "strike_vol": 0.21, "vega_notional": 100000.0, "side": "long",
              "realized": {"variance": 0.0392}},
             {"id": "LS-0007", "kind": "leverage", "start": "2026-11-30T15:30:00Z", "maturity": "2027-03-19T21:00:00Z",
-             "strike": -0.0015, "variance_notional": 2000000.0, "side": "short"}
+             "strike": -0.0015, "variance_notional": 3000.0, "side": "short"}
         ]
     })
 }
