@@ -96,6 +96,23 @@ fn bad_input_exits_2_with_one_line_per_problem() {
 }
 
 #[test]
+fn vols_typed_in_percent_exit_2_saying_vols_are_decimals() {
+    let text = r#"{"underlying":"KESTREL50","as_of":"2026-11-30T15:30:00Z","slices":[
+        {"tau":0.5,"forward":100,"points":[{"strike":90,"vol":22},{"strike":100,"vol":20},{"strike":110,"vol":19}]}]}"#;
+    let out = logstrip(&["analyze", "--input", "-"], Some(text));
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr
+            .lines()
+            .next()
+            .is_some_and(|l| l.starts_with("slices[0].points[0].vol: 22 is a vol of 2200%: vols are decimals")),
+        "{stderr}"
+    );
+    assert_eq!(stderr.lines().count(), 3, "{stderr}");
+}
+
+#[test]
 fn malformed_and_misspelt_input_name_the_problem() {
     let out = logstrip(&["analyze", "--input", "-"], Some("{\"underlying\": \"X\", "));
     assert_eq!(out.status.code(), Some(2));

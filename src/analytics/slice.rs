@@ -122,15 +122,22 @@ impl Slice {
                     message: format!("must be positive, got {}", p.vol),
                 });
             }
-            for (field, v) in [("bid", p.bid), ("ask", p.ask)] {
-                if let Some(v) = v {
-                    if !(v.is_finite() && v >= 0.0) {
-                        errors.push(SliceError::Quote {
-                            index,
-                            field,
-                            message: format!("must be non-negative, got {v}"),
-                        });
-                    }
+            for (field, v) in [("vol", Some(p.vol)), ("bid", p.bid), ("ask", p.ask)] {
+                match v {
+                    Some(v) if v > super::tolerances::PERCENT_VOL_LIMIT => errors.push(SliceError::Quote {
+                        index,
+                        field,
+                        message: format!(
+                            "{v} is a vol of {}%: vols are decimals (0.20 for 20%), not percentages",
+                            100.0 * v
+                        ),
+                    }),
+                    Some(v) if field != "vol" && !(v.is_finite() && v >= 0.0) => errors.push(SliceError::Quote {
+                        index,
+                        field,
+                        message: format!("must be non-negative, got {v}"),
+                    }),
+                    _ => {}
                 }
             }
             if let (Some(b), Some(a)) = (p.bid, p.ask) {
@@ -343,5 +350,21 @@ mod tests {
         assert!(text.iter().any(|t| t.contains("duplicate strike")), "{text:?}");
         assert!(text.iter().any(|t| t.contains("above ask")), "{text:?}");
         assert!(text.iter().any(|t| t.contains("at least 3")), "{text:?}");
+    }
+
+    #[test]
+    fn vols_in_percent_are_refused_naming_the_field() {
+        let pts: Vec<VolQuote> = [90.0, 100.0, 110.0]
+            .iter()
+            .map(|&strike| VolQuote { strike, vol: 20.0, bid: Some(19.5), ask: Some(20.5) })
+            .collect();
+        let errs = Slice::from_vols(0.5, 100.0, 1.0, &pts).expect_err("percent vols");
+        let text: Vec<String> = errs.iter().map(|e| e.to_string()).collect();
+        assert_eq!(text.len(), 9, "vol, bid and ask of each quote: {text:?}");
+        assert!(text[0].starts_with("quote 0 vol: 20 is a vol of 2000%: vols are decimals"), "{text:?}");
+        // 300% is unusual but possible: a note, not an error.
+        let high: Vec<VolQuote> =
+            [90.0, 100.0, 110.0].iter().map(|&strike| VolQuote { strike, vol: 3.2, bid: None, ask: None }).collect();
+        assert!(Slice::from_vols(0.5, 100.0, 1.0, &high).is_ok());
     }
 }

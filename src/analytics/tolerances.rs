@@ -61,6 +61,11 @@ pub const OUTLIER_FLOOR_VOL: f64 = 0.02;
 /// decimal): flagged, not rejected (common practice, no source).
 pub const SUSPICIOUS_VOL: f64 = 3.0;
 
+/// Vols above this (500%) are refused as percentages typed for decimals: no listed
+/// option trades there, and a snapshot in percent would otherwise run to a
+/// variance-swap vol of thousands of percent (common practice, no source).
+pub const PERCENT_VOL_LIMIT: f64 = 5.0;
+
 /// Calibration stops when the sum of squares can fall by less than this fraction of itself
 /// (the Gauss–Newton step's predicted gain, `levenberg.rs`). For a least-squares fit the
 /// remaining distance to the minimum is then about `sqrt(1e-9) = 3e-5` of the parameters'
