@@ -49,8 +49,36 @@ pub struct SliceAnalysis {
     pub calendar_ok: bool,
     /// Usable quotes.
     pub points: usize,
+    /// Quotes left out of the smile or kept but suspect, by strike.
+    pub flagged_quotes: Vec<FlaggedQuote>,
     /// Everything suspect about this slice, in words.
     pub warnings: Vec<String>,
+}
+
+/// Why a quote is named.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum FlagReason {
+    /// Left out of the fit: off-market (stale, or a typing error).
+    LeftOut,
+    /// Kept, but further from the fitted smile than its half spreads allow.
+    Suspect,
+}
+
+/// A quote the smile fit names, with where it sits against the fit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct FlaggedQuote {
+    /// Position of the quote among the slice's usable quotes.
+    pub index: usize,
+    /// Strike.
+    pub strike: f64,
+    /// Quoted implied vol (decimal).
+    pub vol: f64,
+    /// The fitted smile's vol there (decimal).
+    pub fitted_vol: f64,
+    /// Half the bid/ask spread in vol, when quoted.
+    pub half_spread: Option<f64>,
+    /// Why it is named.
+    pub reason: FlagReason,
 }
 
 /// The analysis of a snapshot, slices sorted by expiry.
@@ -120,6 +148,33 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
                 distance.abs() * 100.0
             ));
         }
+        let quotes = slice.quotes();
+        let flag = |index: usize, reason: FlagReason| {
+            let q = quotes[index];
+            FlaggedQuote {
+                index,
+                strike: slice.strikes()[index],
+                vol: q.vol,
+                fitted_vol: (smile.curve.total_variance(q.k).max(0.0) / tau).sqrt(),
+                half_spread: q.half_spread,
+                reason,
+            }
+        };
+        let mut flagged_quotes: Vec<FlaggedQuote> = smile
+            .excluded
+            .iter()
+            .map(|(i, _)| flag(*i, FlagReason::LeftOut))
+            .chain(smile.suspect.iter().map(|i| flag(*i, FlagReason::Suspect)))
+            .collect();
+        flagged_quotes.sort_by_key(|f| f.index);
+        for f in flagged_quotes.iter().filter(|f| f.reason == FlagReason::Suspect) {
+            warnings.push(format!(
+                "quote at strike {} is {:.1} vol points from the fitted smile, more than {} half spreads: suspect",
+                f.strike,
+                (f.fitted_vol - f.vol).abs() * 100.0,
+                crate::analytics::smile::SUSPECT_HALF_SPREADS
+            ));
+        }
         let (k_lo, k_hi) = smile.quoted_range;
         let pad = 0.25 * (k_hi - k_lo);
         let butterfly = butterfly_scan(&smile.curve, k_lo - pad, k_hi + pad, BUTTERFLY_SCAN_STEPS, BUTTERFLY_G_TOL);
@@ -147,6 +202,7 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
             forward: slice.forward(),
             discount: slice.discount(),
             points: slice.quotes().len(),
+            flagged_quotes,
             smile,
             replication,
             forward_variance: f64::NAN,

@@ -20,6 +20,7 @@ pub mod replication;
 pub mod risk;
 pub mod slice;
 pub mod smile;
+pub mod smoothing_spline;
 pub mod special;
 pub mod stats;
 pub mod term;

@@ -12,9 +12,7 @@ use super::kronrod_table::GAUSS_KRONROD_21;
 use super::quadrature::{integrate_batches_with, KronrodRule, QuadratureTolerance, MAX_PANEL_NODES};
 use super::smile::SmileShape;
 use super::special::exp::exp;
-use super::tolerances::{
-    MAX_ABS_LOG_MONEYNESS, OTM_PRICE_CUTOFF, REPLICATION_ABS_TOL, REPLICATION_MAX_EVALUATIONS, REPLICATION_REL_TOL,
-};
+use super::tolerances::{MAX_ABS_LOG_MONEYNESS, OTM_PRICE_CUTOFF, REPLICATION_ABS_TOL, REPLICATION_MAX_EVALUATIONS};
 
 /// Annualised variance, gamma and leverage swap levels (decimal variance).
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -267,6 +265,7 @@ fn swap_weights(k: f64, call: f64) -> [f64; 3] {
 /// Replicates the swap levels of `curve` for an expiry `tau` years away. `quoted`
 /// is the range of quoted log-moneyness; what lies beyond it counts as wing.
 pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64) -> Replication {
+    let relative = curve.relative_tolerance();
     let variable = Variable::for_curve(curve);
     // The integrand at a panel's nodes, in stages over all of them (see
     // `mirrored_calls`): log-moneyness and dk/du, total variance, calls, weights.
@@ -295,16 +294,13 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
     core_breaks.push(0.0);
     core_breaks.sort_by(f64::total_cmp);
     core_breaks.dedup();
-    let tol = QuadratureTolerance {
-        relative: REPLICATION_REL_TOL,
-        absolute: REPLICATION_ABS_TOL,
-        max_evaluations: REPLICATION_MAX_EVALUATIONS,
-    };
+    let tol =
+        QuadratureTolerance { relative, absolute: REPLICATION_ABS_TOL, max_evaluations: REPLICATION_MAX_EVALUATIONS };
     let core = integrate_batches_with(&REPLICATION_RULE, integrand, &variable.core_panels(&core_breaks), tol);
     // Wings are held to the accuracy of the total, not to their own (small) size.
     let wing_tol = QuadratureTolerance {
-        relative: REPLICATION_REL_TOL,
-        absolute: (REPLICATION_REL_TOL * core.value[1].abs().min(core.value[0].abs())).max(REPLICATION_ABS_TOL),
+        relative,
+        absolute: (relative * core.value[1].abs().min(core.value[0].abs())).max(REPLICATION_ABS_TOL),
         max_evaluations: REPLICATION_MAX_EVALUATIONS,
     };
     let mut left_breaks: Vec<f64> = Vec::with_capacity(left.len() + 1);

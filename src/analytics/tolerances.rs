@@ -6,6 +6,13 @@
 /// ~1e-12 relative on the interpolated smile; one digit of margin).
 pub const REPLICATION_REL_TOL: f64 = 1e-13;
 
+/// Relative accuracy of the replication integrals on a smile with a residual spline
+/// (`svi_spline`): the spline's third derivative jumps at every quote, and holding
+/// those integrals to [`REPLICATION_REL_TOL`] took 2,360 integrand evaluations per
+/// smile on a 35 x 60 snapshot against 711 at this tolerance, which is still four
+/// orders below the fit's own error on clean quotes (1e-6 relative at best).
+pub const SPLINE_REPLICATION_REL_TOL: f64 = 1e-10;
+
 /// Absolute accuracy of the replication integrals, in units of the integral
 /// (variance times years / 2). Needed when an integral is zero, e.g. the leverage
 /// swap of a flat smile. Double-precision rounding of values of order 1e-2.

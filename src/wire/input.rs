@@ -91,7 +91,9 @@ pub struct PriceDoc {
 #[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum SmileMethodDoc {
-    /// Raw SVI.
+    /// SVI plus a cross-validated smoothing spline of its residuals, square-root wings.
+    SviSpline,
+    /// Raw SVI (the default).
     Svi,
     /// Monotone cubic.
     Monotone,
@@ -484,7 +486,8 @@ pub fn validate_snapshot(doc: &SnapshotDoc) -> Result<ValidSnapshot, InputErrors
     }
     let smile = match doc.smile {
         Some(SmileMethodDoc::Monotone) => SmileMethod::Monotone,
-        _ => SmileMethod::Svi,
+        Some(SmileMethodDoc::SviSpline) => SmileMethod::SviSpline,
+        Some(SmileMethodDoc::Svi) | None => SmileMethod::Svi,
     };
     let fit = fit_spec(doc.fit.as_ref(), &mut problems);
     let expiries = doc.slices.iter().map(|s| s.expiry.clone()).collect();

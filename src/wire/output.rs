@@ -91,6 +91,35 @@ pub struct QualityDoc {
     pub calendar_ok: bool,
     /// What is suspect, in words.
     pub warnings: Vec<String>,
+    /// Quotes the smile fit left out or finds suspect, by strike.
+    pub flagged_quotes: Vec<FlaggedQuoteDoc>,
+}
+
+/// A quote named by the smile fit.
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
+pub struct FlaggedQuoteDoc {
+    /// Strike.
+    pub strike: f64,
+    /// Quoted implied vol, decimal.
+    pub vol: f64,
+    /// The fitted smile's vol at the strike, decimal.
+    pub fitted_vol: f64,
+    /// Distance from the fit in half spreads, when bid/ask was quoted.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub half_spreads: Option<f64>,
+    /// `left_out` (off-market: not used by the fit) or `suspect` (used, but further
+    /// from the fit than two half spreads).
+    pub reason: FlagReasonDoc,
+}
+
+/// Why a quote is named.
+#[derive(Debug, Clone, Copy, Serialize, utoipa::ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum FlagReasonDoc {
+    /// Left out of the fit.
+    LeftOut,
+    /// Kept, but outside two half spreads of the fit.
+    Suspect,
 }
 
 /// The fitted smile of a slice.
@@ -109,6 +138,23 @@ pub enum SmileDoc {
         m: f64,
         /// Curvature scale.
         sigma: f64,
+    },
+    /// SVI plus a smoothing spline of its residuals, square-root wings.
+    SviSpline {
+        /// Level of the SVI base.
+        a: f64,
+        /// Wing steepness of the SVI base.
+        b: f64,
+        /// Asymmetry of the SVI base.
+        rho: f64,
+        /// Shift of the SVI base.
+        m: f64,
+        /// Curvature scale of the SVI base.
+        sigma: f64,
+        /// Log-moneyness where the wings begin (the outermost kept quotes).
+        wing_edges: [f64; 2],
+        /// Asymptotic wing slopes of total variance: left (magnitude), right.
+        wing_slopes: [f64; 2],
     },
     /// Monotone cubic through the quotes.
     Monotone {
@@ -260,9 +306,37 @@ pub fn analysis_doc(input: &ValidSnapshot, analysis: &Analysis) -> AnalysisDoc {
                     butterfly_ok: s.butterfly.is_none(),
                     calendar_ok: s.calendar_ok,
                     warnings: s.warnings.clone(),
+                    flagged_quotes: s
+                        .flagged_quotes
+                        .iter()
+                        .map(|f| FlaggedQuoteDoc {
+                            strike: f.strike,
+                            vol: f.vol,
+                            fitted_vol: f.fitted_vol,
+                            half_spreads: f.half_spread.filter(|h| *h > 0.0).map(|h| (f.vol - f.fitted_vol).abs() / h),
+                            reason: match f.reason {
+                                crate::analytics::analysis::FlagReason::LeftOut => FlagReasonDoc::LeftOut,
+                                crate::analytics::analysis::FlagReason::Suspect => FlagReasonDoc::Suspect,
+                            },
+                        })
+                        .collect(),
                 }),
                 smile: Some(match &s.smile.curve {
                     SmileCurve::Svi(p) => SmileDoc::Svi { a: p.a, b: p.b, rho: p.rho, m: p.m, sigma: p.sigma },
+                    SmileCurve::SviSpline(c) => {
+                        let p = c.svi;
+                        let (l, r) = c.wing_slopes();
+                        let edges = c.edges();
+                        SmileDoc::SviSpline {
+                            a: p.a,
+                            b: p.b,
+                            rho: p.rho,
+                            m: p.m,
+                            sigma: p.sigma,
+                            wing_edges: [edges[0], edges[1]],
+                            wing_slopes: [l, r],
+                        }
+                    }
                     SmileCurve::Monotone(m) => {
                         let (l, r) = m.wing_slopes();
                         SmileDoc::Monotone { nodes: m.nodes().len(), wing_slopes: [l, r] }
@@ -277,6 +351,7 @@ pub fn analysis_doc(input: &ValidSnapshot, analysis: &Analysis) -> AnalysisDoc {
         as_of: input.as_of.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
         spot: input.spot,
         smile: Some(match input.options.smile {
+            crate::analytics::smile::SmileMethod::SviSpline => "svi_spline",
             crate::analytics::smile::SmileMethod::Svi => "svi",
             crate::analytics::smile::SmileMethod::Monotone => "monotone",
         }),

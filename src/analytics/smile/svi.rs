@@ -655,6 +655,45 @@ fn fit_weighted(
     params_from(best.m, best.ln_sigma.exp(), best.x)
 }
 
+/// Weights of the quotes in total variance, `1 / (2 vol tau h)^2` with `h` the half
+/// spread (or the median half spread, or [`DEFAULT_HALF_SPREAD_VOL`]), normalised to a
+/// mean of 1, and the normalisation.
+fn spread_weights(quotes: &[SmileQuote], tau: f64) -> (Vec<f64>, f64) {
+    let spreads = quotes.iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0);
+    let default_spread = median_of(spreads).unwrap_or(DEFAULT_HALF_SPREAD_VOL);
+    // A vol error e maps to a total-variance error of about 2 vol tau e.
+    let mut weight: Vec<f64> = quotes
+        .iter()
+        .map(|q| 1.0 / (2.0 * q.vol * tau * q.half_spread.filter(|h| *h > 0.0).unwrap_or(default_spread)).powi(2))
+        .collect();
+    let norm = weight.iter().sum::<f64>() / quotes.len().max(1) as f64;
+    weight.iter_mut().for_each(|x| *x /= norm);
+    (weight, norm)
+}
+
+/// SVI fitted to the quotes with each quote's spread weight multiplied by
+/// `robustness[i]` (0 leaves it out), from `warm` when given; no screening of its own
+/// (the caller reweights).
+pub(crate) fn fit_reweighted(
+    quotes: &[SmileQuote],
+    tau: f64,
+    robustness: &[f64],
+    prior: SlopePrior,
+    warm: Option<WarmStart>,
+) -> SviParams {
+    let k: Vec<f64> = quotes.iter().map(|q| q.k).collect();
+    let w: Vec<f64> = quotes.iter().map(|q| q.vol * q.vol * tau).collect();
+    let (mut weight, norm) = spread_weights(quotes, tau);
+    for (x, r) in weight.iter_mut().zip(robustness) {
+        *x *= r;
+    }
+    let used = robustness.iter().filter(|r| **r > 0.0).count();
+    let good_enough = SVI_WARM_START_ACCEPT_SPREADS.powi(2) * used as f64 / norm;
+    let atm_index = k.iter().enumerate().min_by(|a, b| a.1.abs().total_cmp(&b.1.abs())).map_or(0, |(i, _)| i);
+    let atm_sd = w[atm_index].sqrt();
+    fit_weighted(&k, &w, &weight, atm_sd, prior, warm.map(|start| (start, good_enough)))
+}
+
 /// Quasi-explicit SVI fit, weighted by the quotes' bid/ask spreads, with one round
 /// of off-market screening: quotes further from the first fit than
 /// `OUTLIER_SIGMAS` robust standard deviations (and their own half spread times
@@ -691,15 +730,7 @@ pub fn fit_from(
     let n = quotes.len();
     let k: Vec<f64> = quotes.iter().map(|q| q.k).collect();
     let w: Vec<f64> = quotes.iter().map(|q| q.vol * q.vol * tau).collect();
-    let spreads = quotes.iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0);
-    let default_spread = median_of(spreads).unwrap_or(DEFAULT_HALF_SPREAD_VOL);
-    // A vol error e maps to a total-variance error of about 2 vol tau e.
-    let mut weight: Vec<f64> = quotes
-        .iter()
-        .map(|q| 1.0 / (2.0 * q.vol * tau * q.half_spread.filter(|h| *h > 0.0).unwrap_or(default_spread)).powi(2))
-        .collect();
-    let norm = weight.iter().sum::<f64>() / n as f64;
-    weight.iter_mut().for_each(|x| *x /= norm);
+    let (weight, norm) = spread_weights(quotes, tau);
     // With the normalised weights, cost * norm is the sum of squared misses in
     // units of the half spreads: a fit whose root mean square miss is within
     // SVI_WARM_START_ACCEPT_SPREADS half spreads is as good as the quotes tell.
@@ -737,7 +768,13 @@ pub fn fit_from(
     let curve = SmileCurve::Svi(params);
     // `candidates` is sorted by quote index here.
     let rmse = rmse_vol(&curve, quotes, tau, (0..n).filter(|i| candidates.binary_search_by_key(i, |c| c.0).is_err()));
-    Ok(FittedSmile { curve, rmse_vol: rmse, excluded: candidates, quoted_range: (quotes[0].k, quotes[n - 1].k) })
+    Ok(FittedSmile {
+        curve,
+        rmse_vol: rmse,
+        excluded: candidates,
+        suspect: Vec::new(),
+        quoted_range: (quotes[0].k, quotes[n - 1].k),
+    })
 }
 
 #[cfg(test)]
