@@ -333,3 +333,30 @@ fn tuning_smile_sets_within_budget() {
 fn holdout_smile_sets_within_budget() {
     check_seed_set(SEED_SETS[1]);
 }
+
+/// `monotone` interpolates every quote: on noisy quotes (tuning set 07, 0.2 to 0.3 vol
+/// points of noise, no bid/ask) it would carry the noise into its fitted wings, so each
+/// slice gives way to `svi_spline` with a warning and the levels hold the noisy set's
+/// budget; on clean quotes (tuning set 01) it stays the interpolant, with no warning.
+#[test]
+fn monotone_gives_way_on_noisy_quotes_and_says_so() {
+    use logstrip::analytics::smile::SmileCurve;
+    let noisy = collect_set_results("tuning", &smile_set_dir("tuning").join("07_noisy_mid.json"), "monotone");
+    let Ok((_, analysis)) = &noisy.analysis else { panic!("noisy set analyses: {:?}", noisy.analysis.err()) };
+    for s in &analysis.slices {
+        assert!(matches!(s.smile.curve, SmileCurve::SviSpline(_)), "slice {} kept monotone", s.input_index);
+        assert!(s.warnings.iter().any(|w| w.contains("not monotone")), "slice {}: {:?}", s.input_index, s.warnings);
+    }
+    let budget = target("07_noisy_mid").budget();
+    let worst = noisy.worst();
+    for q in 0..3 {
+        let tol = budget[q].expect("budget");
+        assert!(worst[q] <= tol, "monotone on noisy quotes: error {:.3e}, tolerance {tol:.1e} (level {q})", worst[q]);
+    }
+    let clean = collect_set_results("tuning", &smile_set_dir("tuning").join("01_dense_clean.json"), "monotone");
+    let Ok((_, analysis)) = &clean.analysis else { panic!("clean set analyses") };
+    for s in &analysis.slices {
+        assert!(matches!(s.smile.curve, SmileCurve::Monotone(_)), "slice {} left monotone", s.input_index);
+        assert!(!s.warnings.iter().any(|w| w.contains("not monotone")), "{:?}", s.warnings);
+    }
+}

@@ -139,6 +139,7 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
         let tau = slice.tau();
         let replication = replicate(&smile.curve, smile.quoted_range, tau);
         let mut warnings: Vec<String> = slice.notes().to_vec();
+        warnings.extend(smile.notes.iter().cloned());
         for (i, distance) in &smile.excluded {
             // `distance` is fitted smile minus quote: negative when the quote is above.
             let side = if *distance < 0.0 { "above" } else { "below" };

@@ -225,7 +225,14 @@ pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
     let range = (k[0], k[k.len() - 1]);
     let curve = SmileCurve::Monotone(MonotoneSmile::new(MonotoneCubic::new(k, w)?));
     let rmse = rmse_vol(&curve, quotes, tau, 0..quotes.len());
-    Ok(FittedSmile { curve, rmse_vol: rmse, excluded: Vec::new(), suspect: Vec::new(), quoted_range: range })
+    Ok(FittedSmile {
+        curve,
+        rmse_vol: rmse,
+        excluded: Vec::new(),
+        suspect: Vec::new(),
+        quoted_range: range,
+        notes: Vec::new(),
+    })
 }
 
 #[cfg(test)]

@@ -774,6 +774,7 @@ pub fn fit_from(
         excluded: candidates,
         suspect: Vec::new(),
         quoted_range: (quotes[0].k, quotes[n - 1].k),
+        notes: Vec::new(),
     })
 }
 

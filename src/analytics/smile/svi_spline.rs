@@ -163,9 +163,10 @@ impl SviSpline {
         // A wing continuing noisy curvature can bend to a slope far beyond anything the
         // quotes show (a 0.8-year expiry of a noisy 15-strike set went from 2.6 to 22
         // vol points of variance within half a unit of log-moneyness): its asymptote is
-        // held to WING_SLOPE_CAP times the larger of its edge slope and the SVI base's.
+        // held to WING_SLOPE_CAP times the SVI base's, which all the quotes (and the
+        // slope prior) set, where the edge slope is one quote's neighbourhood.
         let capped = |wing: SqrtWing, slope: f64, svi_slope: f64, direction: f64, value: f64| {
-            let limit = WING_SLOPE_CAP * slope.max(svi_slope);
+            let limit = WING_SLOPE_CAP * svi_slope;
             if wing.beta > limit {
                 SqrtWing::with_asymptote(wing.edge, direction, value, slope, limit)
             } else {
@@ -218,10 +219,11 @@ fn residual_spline(
     Some((fit.spline, fit.hat_diagonal, log10_smoothing))
 }
 
-/// Largest asymptotic wing slope, as a multiple of the larger of the edge slope and the
-/// SVI base's asymptotic slope. Rule of thumb (no source); on the tuning smile sets
-/// caps of 1.5, 2 and 3 give the same levels to three digits (the 15-strike clean set
-/// gains: VS 4.7e-3 to 4.1e-3), so the cap only stops runaway wings.
+/// Largest asymptotic wing slope, as a multiple of the SVI base's asymptotic slope.
+/// Rule of thumb (no source); on the tuning smile sets caps of 1.5, 2 and 3 (of the
+/// larger of the edge and SVI slopes, and of the SVI slope alone) give the same levels
+/// to three digits (the 15-strike clean set gains: VS 4.7e-3 to 4.1e-3), so the cap
+/// only stops runaway wings.
 pub const WING_SLOPE_CAP: f64 = 2.0;
 
 /// Reach, in ATM standard deviations, below which a side is as good as unquoted: its
@@ -342,7 +344,14 @@ pub fn fit(
         Vec::new()
     };
     let rmse = rmse_vol(&curve, quotes, tau, kept.iter().copied());
-    Ok(FittedSmile { curve, rmse_vol: rmse, excluded, suspect, quoted_range: (quotes[0].k, quotes[n - 1].k) })
+    Ok(FittedSmile {
+        curve,
+        rmse_vol: rmse,
+        excluded,
+        suspect,
+        quoted_range: (quotes[0].k, quotes[n - 1].k),
+        notes: Vec::new(),
+    })
 }
 
 #[cfg(test)]
