@@ -278,14 +278,14 @@ pub fn fit(x: &[f64], y: &[f64], weight: &[f64], lambda: f64) -> Result<Smoothin
 
 /// Decades of `lambda`, relative to its natural scale, searched by
 /// [`fit_by_cross_validation`]: from near interpolation to near the straight line.
-const LOG10_LAMBDA_RANGE: (f64, f64) = (-14.0, 6.0);
+pub const LOG10_LAMBDA_RANGE: (f64, f64) = (-14.0, 6.0);
 
 /// Step of the coarse search in decades of `lambda`.
-const LOG10_LAMBDA_STEP: f64 = 1.0;
+pub const LOG10_LAMBDA_STEP: f64 = 1.0;
 
 /// Golden-section steps refining the best coarse point: the bracket of two decades
 /// shrinks by 0.618 each step, to about 0.01 decade after ten.
-const GOLDEN_STEPS: usize = 10;
+pub const GOLDEN_STEPS: usize = 10;
 
 /// The smoothing spline with `lambda` chosen by generalised cross-validation: a coarse
 /// search over [`LOG10_LAMBDA_RANGE`] decades of the natural scale
@@ -301,7 +301,7 @@ pub fn fit_by_cross_validation(x: &[f64], y: &[f64], weight: &[f64]) -> Result<S
 }
 
 /// Decades either side of a hint that the warm-started search brackets.
-const HINT_HALF_WIDTH: f64 = 1.5;
+pub const HINT_HALF_WIDTH: f64 = 1.5;
 
 /// [`fit_by_cross_validation`] starting from `hint`, a `log10` of `lambda` relative to
 /// its natural scale (from a neighbouring, similar fit): the golden-section search runs
