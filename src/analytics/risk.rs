@@ -331,17 +331,21 @@ fn notional_scale(p: &SwapPosition) -> f64 {
 /// [`RiskError`] for a maturity beyond the last expiry, missing realized data or spot,
 /// inconsistent return counts, or a forward-starting gamma or leverage swap.
 pub fn value_swap(position: &SwapPosition, market: &SwapMarket) -> Result<SwapValue, RiskError> {
-    let legs = legs(position, market)?;
+    Ok(value_of(position, &legs(position, market)?))
+}
+
+/// The value of `position` from its legs.
+fn value_of(position: &SwapPosition, legs: &Legs) -> SwapValue {
     let scale = notional_scale(position) * legs.discount;
     let accrued_leg = scale * legs.past_weight * legs.accrued;
     let remaining_leg = scale * legs.future_weight * legs.remaining;
-    Ok(SwapValue {
+    SwapValue {
         value: accrued_leg + remaining_leg - scale * position.strike,
         accrued_leg,
         remaining_leg,
         implied_level: legs.implied_level,
         discount: legs.discount,
-    })
+    }
 }
 
 /// Swap levels of every expiry with its swap vols moved by a vol bump.
@@ -491,9 +495,8 @@ pub fn explain(
     if elapsed < 0.0 {
         return Err(RiskError::EarlierAfterLater);
     }
-    let earlier_value = value_swap(earlier, earlier_market)?.value;
-    let later_value = value_swap(later, later_market)?.value;
     let (e, l) = (legs(earlier, earlier_market)?, legs(later, later_market)?);
+    let (earlier_value, later_value) = (value_of(earlier, &e).value, value_of(later, &l).value);
     let scale = notional_scale(later);
     let at_earlier_discount = scale * e.discount;
     let realized_accrual = at_earlier_discount * (l.past_weight * l.accrued - e.past_weight * e.accrued);

@@ -85,12 +85,22 @@ pub struct SmoothingFit {
     /// Generalised cross-validation score `n RSS / (n - tr H)^2` (weighted residual
     /// sum of squares); infinite when `tr H` reaches `n`.
     pub gcv: f64,
+    /// Weighted residual sum of squares `sum omega_i (y_i - g_i)^2`.
+    pub residual_sum_of_squares: f64,
 }
 
 impl SmoothingFit {
     /// Effective degrees of freedom, the trace of the hat matrix.
     pub fn degrees_of_freedom(&self) -> f64 {
         self.hat_diagonal.iter().sum()
+    }
+
+    /// The data's noise in the units the weights make one, `sqrt(RSS / (n - tr H))`
+    /// (Craven & Wahba 1979, Numer. Math. 31); `None` when the fit (nearly)
+    /// interpolates, fewer than half a degree of freedom left.
+    pub fn noise_scale(&self) -> Option<f64> {
+        let left = self.hat_diagonal.len() as f64 - self.degrees_of_freedom();
+        (left > 0.5).then(|| (self.residual_sum_of_squares / left).sqrt())
     }
 }
 
@@ -273,7 +283,13 @@ pub fn fit(x: &[f64], y: &[f64], weight: &[f64], lambda: f64) -> Result<Smoothin
     let gcv = if dof_left > 1e-9 { n as f64 * rss / (dof_left * dof_left) } else { f64::INFINITY };
     let mut second = vec![0.0; n];
     second[1..=m].copy_from_slice(&gamma);
-    Ok(SmoothingFit { spline: NaturalCubic { knots: x.to_vec(), values, second }, hat_diagonal, lambda, gcv })
+    Ok(SmoothingFit {
+        spline: NaturalCubic { knots: x.to_vec(), values, second },
+        hat_diagonal,
+        lambda,
+        gcv,
+        residual_sum_of_squares: rss,
+    })
 }
 
 /// Decades of `lambda`, relative to its natural scale, searched by

@@ -687,6 +687,9 @@ pub(crate) fn fit_reweighted(
     for (x, r) in weight.iter_mut().zip(robustness) {
         *x *= r;
     }
+    // With the normalised weights, cost * norm is the sum of squared misses in
+    // units of the half spreads: a fit whose root mean square miss is within
+    // SVI_WARM_START_ACCEPT_SPREADS half spreads is as good as the quotes tell.
     let used = robustness.iter().filter(|r| **r > 0.0).count();
     let good_enough = SVI_WARM_START_ACCEPT_SPREADS.powi(2) * used as f64 / norm;
     let atm_index = k.iter().enumerate().min_by(|a, b| a.1.abs().total_cmp(&b.1.abs())).map_or(0, |(i, _)| i);
@@ -728,19 +731,8 @@ pub fn fit_from(
     warm: Option<WarmStart>,
 ) -> Result<FittedSmile, SmileError> {
     let n = quotes.len();
-    let k: Vec<f64> = quotes.iter().map(|q| q.k).collect();
-    let w: Vec<f64> = quotes.iter().map(|q| q.vol * q.vol * tau).collect();
-    let (weight, norm) = spread_weights(quotes, tau);
-    // With the normalised weights, cost * norm is the sum of squared misses in
-    // units of the half spreads: a fit whose root mean square miss is within
-    // SVI_WARM_START_ACCEPT_SPREADS half spreads is as good as the quotes tell.
-    let good_enough = |used: usize| SVI_WARM_START_ACCEPT_SPREADS.powi(2) * used as f64 / norm;
-    let atm_index = k.iter().enumerate().min_by(|a, b| a.1.abs().total_cmp(&b.1.abs())).map_or(0, |(i, _)| i);
-    let atm_sd = w[atm_index].sqrt();
-
-    let first = fit_weighted(&k, &w, &weight, atm_sd, prior, warm.map(|start| (start, good_enough(n))));
-    let residual: Vec<f64> =
-        (0..n).map(|i| (first.total_variance(k[i]).max(0.0) / tau).sqrt() - quotes[i].vol).collect();
+    let first = fit_reweighted(quotes, tau, &vec![1.0; n], prior, warm);
+    let residual: Vec<f64> = quotes.iter().map(|q| (first.total_variance(q.k).max(0.0) / tau).sqrt() - q.vol).collect();
     let robust_sd = 1.4826 * median_of(residual.iter().map(|r| r.abs())).unwrap_or(0.0);
     let mut candidates: Vec<(usize, f64)> = (0..n)
         .filter(|&i| {
@@ -756,13 +748,12 @@ pub fn fit_from(
     let params = if candidates.is_empty() {
         first
     } else {
-        let mut wt = weight.clone();
+        let mut kept = vec![1.0; n];
         for (i, _) in &candidates {
-            wt[*i] = 0.0;
+            kept[*i] = 0.0;
         }
         // The fit without the left-out quotes starts from the fit with them.
-        let own = WarmStart::from_params(&first).map(|start| (start, good_enough(n - candidates.len())));
-        fit_weighted(&k, &w, &wt, atm_sd, prior, own)
+        fit_reweighted(quotes, tau, &kept, prior, WarmStart::from_params(&first))
     };
     candidates.sort_by_key(|c| c.0);
     let curve = SmileCurve::Svi(params);

@@ -180,22 +180,24 @@ impl SviSpline {
         // vol points of variance within half a unit of log-moneyness): its asymptote is
         // held to WING_SLOPE_CAP times the SVI base's, which all the quotes (and the
         // slope prior) set, where the edge slope is one quote's neighbourhood.
-        let capped = |wing: SqrtWing, slope: f64, svi_slope: f64, direction: f64, value: f64| {
-            let limit = WING_SLOPE_CAP * svi_slope;
-            if wing.beta > limit {
-                SqrtWing::with_asymptote(wing.edge, direction, value, slope, limit)
-            } else {
-                wing
-            }
-        };
-        let left = match asymptotes[0] {
-            Some(beta) => SqrtWing::with_asymptote(lo, -1.0, p_lo.w, -p_lo.dw, beta),
-            None => capped(SqrtWing::new(lo, -1.0, p_lo.w, -p_lo.dw, c_lo), -p_lo.dw, svi_left, -1.0, p_lo.w),
-        };
-        let right = match asymptotes[1] {
-            Some(beta) => SqrtWing::with_asymptote(hi, 1.0, p_hi.w, p_hi.dw, beta),
-            None => capped(SqrtWing::new(hi, 1.0, p_hi.w, p_hi.dw, c_hi), p_hi.dw, svi_right, 1.0, p_hi.w),
-        };
+        let wing =
+            |edge: f64, direction: f64, p: SmilePoint, curvature: f64, asymptote: Option<f64>, svi_slope: f64| {
+                let slope = direction * p.dw;
+                match asymptote {
+                    Some(beta) => SqrtWing::with_asymptote(edge, direction, p.w, slope, beta),
+                    None => {
+                        let matched = SqrtWing::new(edge, direction, p.w, slope, curvature);
+                        let limit = WING_SLOPE_CAP * svi_slope;
+                        if matched.beta > limit {
+                            SqrtWing::with_asymptote(edge, direction, p.w, slope, limit)
+                        } else {
+                            matched
+                        }
+                    }
+                }
+            };
+        let left = wing(lo, -1.0, p_lo, c_lo, asymptotes[0], svi_left);
+        let right = wing(hi, 1.0, p_hi, c_hi, asymptotes[1], svi_right);
         Self { svi, log10_smoothing, correction, left, right, edges: [lo, hi] }
     }
 }
@@ -215,8 +217,21 @@ fn bisquare(z: f64, cut: f64) -> f64 {
     }
 }
 
+/// The spline stage's result.
+struct ResidualFit {
+    /// The residual correction.
+    spline: NaturalCubic,
+    /// Hat-matrix diagonal, per kept quote.
+    hat_diagonal: Vec<f64>,
+    /// `log10` of the smoothing relative to its natural scale.
+    log10_smoothing: f64,
+    /// The quotes' noise in units of their noise scale (vol without bid/ask); `None`
+    /// when the spline interpolates.
+    noise_estimate: Option<f64>,
+}
+
 /// The spline stage: residuals of `svi` at the kept quotes, smoothed by
-/// cross-validation. Returns the spline and each kept quote's hat-matrix diagonal.
+/// cross-validation.
 fn residual_spline(
     quotes: &[SmileQuote],
     tau: f64,
@@ -224,20 +239,15 @@ fn residual_spline(
     kept: &[usize],
     noise: &[f64],
     hint: Option<f64>,
-) -> Option<(NaturalCubic, Vec<f64>, f64, Option<f64>)> {
+) -> Option<ResidualFit> {
     let x: Vec<f64> = kept.iter().map(|&i| quotes[i].k).collect();
     let y: Vec<f64> =
         kept.iter().map(|&i| quotes[i].vol * quotes[i].vol * tau - svi.total_variance(quotes[i].k)).collect();
     // A vol miss e is a total-variance miss of about 2 vol tau e.
     let weight: Vec<f64> = kept.iter().map(|&i| 1.0 / (2.0 * quotes[i].vol * tau * noise[i]).powi(2)).collect();
     let (fit, log10_smoothing) = smoothing_spline::fit_by_cross_validation_near(&x, &y, &weight, hint).ok()?;
-    // The quotes' noise in units of `noise` (vol when that is one): sqrt(RSS / (n - tr H))
-    // (Craven & Wahba 1979, Numer. Math. 31); none when the fit interpolates.
-    let values = fit.spline.values();
-    let rss: f64 = (0..x.len()).map(|i| weight[i] * (y[i] - values[i]).powi(2)).sum();
-    let left = x.len() as f64 - fit.degrees_of_freedom();
-    let noise_estimate = (left > 0.5).then(|| (rss / left).sqrt());
-    Some((fit.spline, fit.hat_diagonal, log10_smoothing, noise_estimate))
+    let noise_estimate = fit.noise_scale();
+    Some(ResidualFit { spline: fit.spline, hat_diagonal: fit.hat_diagonal, log10_smoothing, noise_estimate })
 }
 
 /// Largest asymptotic wing slope, as a multiple of the SVI base's asymptotic slope.
@@ -317,8 +327,10 @@ pub fn fit(
     let mut spline = residual_spline(quotes, tau, &params, &kept, &noise, smoothing_hint);
     if with_spreads {
         for _ in 0..LEAVE_ONE_OUT_ROUNDS {
-            let Some((curve, hat, _, _)) = spline.as_ref() else { break };
-            let fitted = |i: usize| vol_of(params.total_variance(quotes[i].k) + curve.eval(quotes[i].k).0, tau);
+            let Some(residual) = spline.as_ref() else { break };
+            let hat = &residual.hat_diagonal;
+            let fitted =
+                |i: usize| vol_of(params.total_variance(quotes[i].k) + residual.spline.eval(quotes[i].k).0, tau);
             let mut next = Vec::with_capacity(n);
             for i in 0..n {
                 let miss = quotes[i].vol - fitted(i);
@@ -343,17 +355,16 @@ pub fn fit(
     let atm_sd = params.total_variance(0.0).max(1e-12).sqrt();
     let (k_lo, k_hi) = (quotes[kept[0]].k, quotes[kept[kept.len() - 1]].k);
     let (slope_left, slope_right) = params.wing_slopes();
-    let reach = WING_REACH_SD;
-    let asymptotes = [(-k_lo < reach * atm_sd).then_some(slope_left), (k_hi < reach * atm_sd).then_some(slope_right)];
+    let reach = WING_REACH_SD * atm_sd;
+    let asymptotes = [(-k_lo < reach).then_some(slope_left), (k_hi < reach).then_some(slope_right)];
     // Without bid/ask the spline's own residuals say how noisy the quotes are (with
     // bid/ask the robust stages already hold the edges to the spreads). Measured on the
     // tuning smile sets: 60 noisy quotes without bid/ask, VS 8.3e-3 to 5.6e-3; the clean
     // and bid/ask sets unchanged.
-    let noisy = !with_spreads && spline.as_ref().and_then(|s| s.3).is_some_and(|v| v > super::MONOTONE_MAX_NOISE_VOL);
+    let noisy = !with_spreads
+        && spline.as_ref().and_then(|r| r.noise_estimate).is_some_and(|v| v > super::MONOTONE_MAX_NOISE_VOL);
     let curve = match spline {
-        Some((correction, _, p, _)) => {
-            SmileCurve::SviSpline(SviSpline::assemble(params, correction, p, asymptotes, noisy))
-        }
+        Some(r) => SmileCurve::SviSpline(SviSpline::assemble(params, r.spline, r.log10_smoothing, asymptotes, noisy)),
         None => SmileCurve::Svi(params),
     };
     let excluded: Vec<(usize, f64)> = (0..n)
