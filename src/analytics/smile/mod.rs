@@ -105,15 +105,6 @@ impl SmileCurve {
         }
     }
 
-    /// Where a neighbouring expiry's smoothing search starts (see
-    /// [`svi_spline::SviSpline::log10_smoothing`]).
-    pub fn smoothing_hint(&self) -> Option<f64> {
-        match self {
-            Self::SviSpline(c) => Some(c.log10_smoothing),
-            _ => None,
-        }
-    }
-
     /// Slopes of total variance in the left (as a magnitude) and right wing.
     pub fn wing_slopes(&self) -> (f64, f64) {
         match self {
@@ -158,7 +149,7 @@ impl SmileShape for SmileCurve {
     }
     fn relative_tolerance(&self) -> f64 {
         match self {
-            Self::SviSpline(_) => tolerances::SPLINE_REPLICATION_REL_TOL,
+            Self::SviSpline(c) => c.replication_tolerance,
             _ => tolerances::REPLICATION_REL_TOL,
         }
     }
@@ -302,7 +293,7 @@ fn scan_block(k: &[f64], w: &[f64], g: &[f64], tolerance: f64, found: &mut Optio
 pub fn fit_smile(quotes: &[SmileQuote], tau: f64, method: SmileMethod) -> Result<FittedSmile, SmileError> {
     check_quotes(quotes, tau)?;
     match method {
-        SmileMethod::SviSpline => svi_spline::fit(quotes, tau, None, svi::SlopePrior::default(), None),
+        SmileMethod::SviSpline => svi_spline::fit(quotes, tau, None, svi::SlopePrior::default()),
         SmileMethod::Svi => svi::fit(quotes, tau),
         SmileMethod::Monotone => monotone::fit(quotes, tau),
     }
@@ -332,8 +323,8 @@ pub fn fit_smiles(
                 check_quotes(quotes, *tau).map_err(|e| (i, e))?;
                 match quote_noise_vol(quotes, *tau) {
                     Some(noise) if noise > MONOTONE_MAX_NOISE_VOL => {
-                        let mut fit = svi_spline::fit(quotes, *tau, None, svi::SlopePrior::default(), None)
-                            .map_err(|e| (i, e))?;
+                        let mut fit =
+                            svi_spline::fit(quotes, *tau, None, svi::SlopePrior::default()).map_err(|e| (i, e))?;
                         fit.notes.push(format!(
                             "quotes carry about {:.2} vol points of noise: an interpolant would follow it into \
                              the wings, so this smile is svi_spline, not monotone",
@@ -352,8 +343,7 @@ pub fn fit_smiles(
     for (i, (quotes, tau)) in slices.iter().enumerate() {
         check_quotes(quotes, *tau).map_err(|e| (i, e))?;
         let warm = first.last().and_then(|f: &FittedSmile| f.curve.svi_base().and_then(svi::WarmStart::from_params));
-        let hint = first.last().and_then(|f: &FittedSmile| f.curve.smoothing_hint());
-        first.push(fit_with(method, quotes, *tau, svi::SlopePrior::default(), warm, hint).map_err(|e| (i, e))?);
+        first.push(fit_with(method, quotes, *tau, svi::SlopePrior::default(), warm).map_err(|e| (i, e))?);
     }
     if slices.len() < SMOOTHING_MIN_SLICES {
         return Ok(first);
@@ -398,8 +388,7 @@ pub fn fit_smiles(
             continue;
         }
         let own = out[i].curve.svi_base().and_then(svi::WarmStart::from_params);
-        let hint = out[i].curve.smoothing_hint();
-        if let Ok(refit) = fit_with(method, quotes, *tau, prior, own, hint) {
+        if let Ok(refit) = fit_with(method, quotes, *tau, prior, own) {
             out[i] = refit;
         }
     }
@@ -413,10 +402,9 @@ fn fit_with(
     tau: f64,
     prior: svi::SlopePrior,
     warm: Option<svi::WarmStart>,
-    smoothing_hint: Option<f64>,
 ) -> Result<FittedSmile, SmileError> {
     match method {
-        SmileMethod::SviSpline => svi_spline::fit(quotes, tau, warm, prior, smoothing_hint),
+        SmileMethod::SviSpline => svi_spline::fit(quotes, tau, warm, prior),
         _ => svi::fit_from(quotes, tau, prior, warm),
     }
 }
