@@ -349,7 +349,7 @@ pub const LOG10_LAMBDA_STEP: f64 = 2.0;
 /// The smoothing spline with `lambda` chosen by generalised cross-validation: the
 /// score at every [`LOG10_LAMBDA_STEP`] decades over [`LOG10_LAMBDA_RANGE`] of the
 /// natural scale `sum(omega) (x_max - x_min)^3 / n` (where the penalty and the data
-/// term are of one size), then [`refine`] around the best of them. Every decade of the
+/// term are of one size), then a local refinement around the best of them. Every decade of the
 /// range is scored because the score can have more than one local minimum (seen on the
 /// smile sets: a plateau towards interpolation beside a lower dip three decades up).
 /// Without noise the score levels off towards interpolation (both the residuals and

@@ -109,7 +109,7 @@ pub struct SviSpline {
     /// The SVI base.
     pub svi: SviParams,
     /// Relative accuracy the replication integrals are held to on this curve (see
-    /// [`replication_tolerance`]).
+    /// `replication_tolerance`: a thousandth of what its misfit leaves open).
     pub replication_tolerance: f64,
     correction: NaturalCubic,
     left: SqrtWing,
