@@ -38,7 +38,7 @@ fn a_slice_quoted_on_calls_only_takes_its_put_wing_from_the_neighbours() {
         .collect();
     let analysis = analyze(&slices, &AnalyzeOptions::default()).expect("analysis");
     let s = analysis.slices.iter().find(|s| (s.tau - 0.5).abs() < 1e-12).expect("slice at 0.5");
-    assert!(matches!(s.smile.curve, SmileCurve::Svi(_)), "the default smile is SVI");
+    assert!(matches!(s.smile.curve, SmileCurve::SviSpline(_)), "the default smile is SVI plus a residual spline");
     let (true_left, _) = truth(0.5).wing_slopes();
     let (fitted_left, _) = s.smile.curve.wing_slopes();
     // Tolerance 25%: the wing comes from a smooth fit across the other expiries and a

@@ -4,18 +4,13 @@
 use super::calibrate::{fit_leverage, FitOutcome, FitSpec, LeverageTarget};
 use super::replication::{replicate, Replication};
 use super::slice::Slice;
-use super::smile::{butterfly_scan, fit_smiles, ButterflyViolation, FittedSmile, SmileError, SmileMethod, SmileQuote};
+use super::smile::{fit_smiles, ButterflyViolation, FittedSmile, SmileError, SmileMethod, SmileQuote};
 use super::term::TermStructure;
-use super::tolerances::{BUTTERFLY_G_TOL, CALENDAR_TOTAL_VARIANCE_TOL};
+use super::tolerances::CALENDAR_TOTAL_VARIANCE_TOL;
 
 /// Share of the variance swap from beyond the quoted strikes above which a slice is
 /// flagged as resting on its wings (common practice, no source).
 pub const WIDE_WING_SHARE: f64 = 0.10;
-
-/// Grid steps of the butterfly scan over the quoted range plus a quarter of it on
-/// each side: a resolution of about 1/300 of the range, enough to report where
-/// the density turns negative to the precision quotes allow.
-pub const BUTTERFLY_SCAN_STEPS: usize = 200;
 
 /// Options of an analysis.
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -176,9 +171,7 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
                 crate::analytics::smile::SUSPECT_HALF_SPREADS
             ));
         }
-        let (k_lo, k_hi) = smile.quoted_range;
-        let pad = 0.25 * (k_hi - k_lo);
-        let butterfly = butterfly_scan(&smile.curve, k_lo - pad, k_hi + pad, BUTTERFLY_SCAN_STEPS, BUTTERFLY_G_TOL);
+        let butterfly = crate::analytics::smile::butterfly_over_quotes(&smile.curve, smile.quoted_range);
         if let Some(b) = butterfly {
             warnings.push(format!(
                 "butterfly arbitrage: Durrleman's g < 0 for log-moneyness in [{:.3}, {:.3}], minimum {:.3e} at {:.3}",

@@ -85,12 +85,13 @@ fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, fi
     let mut k = start;
     let mut step = first_step;
     loop {
-        k += direction * step;
-        if k.abs() > MAX_ABS_LOG_MONEYNESS {
-            points.push(direction * MAX_ABS_LOG_MONEYNESS);
-            return (points, false);
-        }
+        // A step past the furthest point stops at it, and the price is tested there:
+        // a wing that decays slowly can fall below the cutoff between the walk's last
+        // point and the next, far past the bound (a step of 39 from -26 on the demo
+        // day's 1.4-year smile, wing slope 0.32).
+        k = (k + direction * step).clamp(-MAX_ABS_LOG_MONEYNESS, MAX_ABS_LOG_MONEYNESS);
         points.push(k);
+        let at_bound = k.abs() >= MAX_ABS_LOG_MONEYNESS;
         if below_cutoff(k) {
             // The crossing lies within the last step; halving it moves the wing's end
             // to within a sixteenth of the step past the crossing (WING_END_BISECTIONS).
@@ -107,6 +108,9 @@ fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, fi
                 *end = outside;
             }
             return (points, true);
+        }
+        if at_bound {
+            return (points, false);
         }
         step *= WING_STEP_GROWTH;
     }

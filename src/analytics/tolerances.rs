@@ -44,6 +44,11 @@ pub const MAX_WING_SLOPE: f64 = 1.9;
 /// margin keeps a numerically flat density from being flagged.
 pub const BUTTERFLY_G_TOL: f64 = 1e-9;
 
+/// Grid steps of the butterfly scan over the quoted range plus a quarter of it on
+/// each side ([`crate::analytics::smile::butterfly_over_quotes`]): a resolution of about 1/300 of the range, enough to report where
+/// the density turns negative to the precision quotes allow.
+pub const BUTTERFLY_SCAN_STEPS: usize = 200;
+
 /// Total variance of a later expiry may fall below an earlier one's by this much
 /// (absolute, in variance x years) before calendar arbitrage is flagged: rounding
 /// of the smile fits, not a market tolerance.

@@ -25,7 +25,7 @@ pub struct SnapshotDoc {
     #[serde(deserialize_with = "super::strict::objects")]
     #[schema(min_items = 1, max_items = 200)]
     pub slices: Vec<SliceDoc>,
-    /// Smile method: `svi` (default) or `monotone`.
+    /// Smile method: `svi_spline` (default), `svi` or `monotone`.
     #[serde(default)]
     pub smile: Option<SmileMethodDoc>,
     /// Model fit request; absent means a free rough Heston fit.
@@ -91,9 +91,10 @@ pub struct PriceDoc {
 #[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq, utoipa::ToSchema)]
 #[serde(rename_all = "snake_case")]
 pub enum SmileMethodDoc {
-    /// SVI plus a cross-validated smoothing spline of its residuals, square-root wings.
+    /// SVI plus a cross-validated smoothing spline of its residuals, square-root wings
+    /// (the default).
     SviSpline,
-    /// Raw SVI (the default).
+    /// Raw SVI alone.
     Svi,
     /// Monotone cubic.
     Monotone,
@@ -487,7 +488,8 @@ pub fn validate_snapshot(doc: &SnapshotDoc) -> Result<ValidSnapshot, InputErrors
     let smile = match doc.smile {
         Some(SmileMethodDoc::Monotone) => SmileMethod::Monotone,
         Some(SmileMethodDoc::SviSpline) => SmileMethod::SviSpline,
-        Some(SmileMethodDoc::Svi) | None => SmileMethod::Svi,
+        Some(SmileMethodDoc::Svi) => SmileMethod::Svi,
+        None => SmileMethod::default(),
     };
     let fit = fit_spec(doc.fit.as_ref(), &mut problems);
     let expiries = doc.slices.iter().map(|s| s.expiry.clone()).collect();
