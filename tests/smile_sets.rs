@@ -99,6 +99,10 @@ struct ExpiryResult {
     truth: [f64; 3],
     /// VS relative, GS relative, LS absolute error.
     errors: [f64; 3],
+    /// Standard errors of VS, GS, LS as reported (NaN when absent).
+    se: [f64; 3],
+    /// The slice's warnings.
+    warnings: Vec<String>,
     /// False for expiries the truth file lists as broken: reported, not measured.
     measured: bool,
 }
@@ -198,12 +202,15 @@ fn collect_set_results(seed_set: &str, snapshot: &Path, smile: Option<&str>) -> 
                 (computed[1] / truth[1] - 1.0).abs(),
                 (computed[2] - truth[2]).abs(),
             ];
+            let se = s.level_errors.map_or([f64::NAN; 3], |e| e.total());
             expiries.push(ExpiryResult {
                 input_index: s.input_index,
                 tau,
                 computed,
                 truth,
                 errors,
+                se,
+                warnings: s.warnings.clone(),
                 measured: !broken.contains(&s.input_index),
             });
         }
@@ -369,4 +376,124 @@ fn monotone_gives_way_on_noisy_quotes_and_says_so() {
         assert!(matches!(s.smile.curve, SmileCurve::Monotone(_)), "slice {} left monotone", s.input_index);
         assert!(!s.warnings.iter().any(|w| w.contains("not monotone")), "{:?}", s.warnings);
     }
+}
+
+/// Sets on which the standard errors are checked: the issue's "noisy and sparse
+/// smiles" (15 strikes clean, from prices and noisy; 60 noisy strikes with and without
+/// bid/ask; stale quotes among bid/ask quotes).
+const COVERAGE_SETS: [&str; 6] =
+    ["03_sparse_clean", "04_sparse_prices", "05_sparse_noisy", "06_noisy_bidask", "07_noisy_mid", "08_stale_quotes"];
+
+/// Share of the noisy and sparse sets' expiries (pooled) whose truth lies within two
+/// standard errors: the issue's target. OPEN: not met today on any seed set (pooled
+/// 0.53 to 0.87 by level; the leverage swap's and the sparse sets' errors are larger
+/// than the se says); printed, not asserted.
+const TARGET_COVERAGE: f64 = 0.75;
+
+/// Pooled share asserted today: a floor that keeps the se from getting worse, below
+/// the target (measured 2026-12-05: 0.53 at the lowest, the tuning leverage swap).
+const FLOOR_COVERAGE: f64 = 0.4;
+
+/// Smallest median of |error| / se over a set's expiries: for normal errors and an
+/// honest se it is 0.67; below 0.15 the se is more than four times too large
+/// ("not inflated to get there", the issue).
+const MIN_MEDIAN_Z: f64 = 0.15;
+
+fn median(mut v: Vec<f64>) -> f64 {
+    v.sort_by(f64::total_cmp);
+    if v.is_empty() {
+        f64::NAN
+    } else {
+        v[v.len() / 2]
+    }
+}
+
+/// Coverage and median |z| of each level over a set's measured expiries.
+fn coverage(result: &SetResult) -> ([f64; 3], [f64; 3]) {
+    let measured: Vec<&ExpiryResult> = result.expiries.iter().filter(|e| e.measured).collect();
+    let z = |e: &ExpiryResult, l: usize| (e.computed[l] - e.truth[l]).abs() / e.se[l];
+    let cover = std::array::from_fn(|l| {
+        measured.iter().filter(|e| z(e, l) <= 2.0).count() as f64 / measured.len().max(1) as f64
+    });
+    let median_z = std::array::from_fn(|l| median(measured.iter().map(|e| z(e, l)).collect()));
+    (cover, median_z)
+}
+
+fn check_standard_errors(seed_set: &str) {
+    let mut table = format!(
+        "standard errors, seed set {seed_set}: share of expiries within 2 se (VS / GS / LS), median |error| / se\n"
+    );
+    let mut failures = Vec::new();
+    let (mut within, mut total) = ([0usize; 3], 0usize);
+    for name in COVERAGE_SETS {
+        let file = smile_set_dir(seed_set).join(format!("{name}.json"));
+        let result = collect_set_results(seed_set, &file, None);
+        let (cover, median_z) = coverage(&result);
+        let measured = result.expiries.iter().filter(|e| e.measured).count();
+        total += measured;
+        for l in 0..3 {
+            within[l] += (cover[l] * measured as f64).round() as usize;
+        }
+        table.push_str(&format!(
+            "{name:<18} {:.2} / {:.2} / {:.2}   {:.2} / {:.2} / {:.2}\n",
+            cover[0], cover[1], cover[2], median_z[0], median_z[1], median_z[2]
+        ));
+        for l in 0..3 {
+            if !(median_z[l] >= MIN_MEDIAN_Z) {
+                failures.push(format!("{seed_set}/{name} level {l}: median |z| {:.2} < {MIN_MEDIAN_Z}", median_z[l]));
+            }
+        }
+    }
+    let pooled: [f64; 3] = std::array::from_fn(|l| within[l] as f64 / total.max(1) as f64);
+    table.push_str(&format!(
+        "pooled over {total} expiries: {:.2} / {:.2} / {:.2} within 2 se (target {TARGET_COVERAGE}: {})\n",
+        pooled[0],
+        pooled[1],
+        pooled[2],
+        if pooled.iter().all(|p| *p >= TARGET_COVERAGE) { "met" } else { "OPEN, not asserted" }
+    ));
+    for (l, p) in pooled.iter().enumerate() {
+        if !(*p >= FLOOR_COVERAGE) {
+            failures.push(format!("{seed_set}: pooled coverage of level {l} {p:.2} below the floor {FLOOR_COVERAGE}"));
+        }
+    }
+    // The broken expiry (a sawtooth of +-2.5 vol points) shows a large se and says so.
+    let broken = collect_set_results(seed_set, &smile_set_dir(seed_set).join("11_broken_expiry.json"), None);
+    let others = median(broken.expiries.iter().filter(|e| e.measured).map(|e| e.se[0] / e.truth[0]).collect());
+    for e in broken.expiries.iter().filter(|e| !e.measured) {
+        let relative = e.se[0] / e.truth[0];
+        table.push_str(&format!(
+            "11_broken_expiry   broken slice {}: VS se {:.2e} relative, the others' median {:.2e}\n",
+            e.input_index, relative, others
+        ));
+        if !(relative > BROKEN_SE_FACTOR * others) {
+            failures.push(format!(
+                "{seed_set}: broken slice se {relative:.2e} not above {BROKEN_SE_FACTOR} x {others:.2e}"
+            ));
+        }
+        if !e.warnings.iter().any(|w| w.starts_with("uncertain level")) {
+            failures.push(format!("{seed_set}: broken slice {} has no uncertainty warning", e.input_index));
+        }
+    }
+    println!("{table}");
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
+}
+
+/// How many times the median se of the clean expiries the broken expiry's se must be
+/// at least (rule of thumb, no source: "large").
+const BROKEN_SE_FACTOR: f64 = 10.0;
+
+#[test]
+fn tuning_standard_errors_cover_the_truth() {
+    check_standard_errors("tuning");
+}
+
+#[test]
+fn holdout_standard_errors_cover_the_truth() {
+    check_standard_errors("holdout");
+}
+
+#[test]
+fn fresh_standard_errors_cover_the_truth() {
+    check_standard_errors("fresh");
 }

@@ -7,10 +7,16 @@ use super::slice::Slice;
 use super::smile::{fit_smiles, ButterflyViolation, FittedSmile, SmileError, SmileMethod, SmileQuote};
 use super::term::TermStructure;
 use super::tolerances::CALENDAR_TOTAL_VARIANCE_TOL;
+use super::uncertainty::{level_errors, LevelErrors};
 
 /// Share of the variance swap from beyond the quoted strikes above which a slice is
 /// flagged as resting on its wings (common practice, no source).
 pub const WIDE_WING_SHARE: f64 = 0.10;
+
+/// Two standard errors of the variance-swap vol above which a slice is flagged as
+/// uncertain, in vol points (rule of thumb, no source: a desk quotes variance swaps to
+/// a few tenths of a vol point).
+pub const UNCERTAIN_VOL_POINTS: f64 = 0.5;
 
 /// Options of an analysis.
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -36,6 +42,8 @@ pub struct SliceAnalysis {
     pub smile: FittedSmile,
     /// Swap levels and integration diagnostics.
     pub replication: Replication,
+    /// Standard errors of the levels (`None` for the monotone cubic smile).
+    pub level_errors: Option<LevelErrors>,
     /// Forward variance on the period ending at this expiry.
     pub forward_variance: f64,
     /// Butterfly arbitrage found on the smile, if any.
@@ -133,7 +141,18 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
         let slice = &slices[index];
         let tau = slice.tau();
         let replication = replicate(&smile.curve, smile.quoted_range, tau);
+        let level_errors = level_errors(&smile, tau);
         let mut warnings: Vec<String> = slice.notes().to_vec();
+        if let Some(errors) = &level_errors {
+            let variance = replication.levels.variance;
+            let vol_se = errors.total()[0] / (2.0 * variance.max(1e-12).sqrt());
+            if 2.0 * vol_se > UNCERTAIN_VOL_POINTS / 100.0 {
+                warnings.push(format!(
+                    "uncertain level: the variance swap is known to within {:.1} vol points (two standard errors) from these quotes",
+                    2.0 * vol_se * 100.0
+                ));
+            }
+        }
         warnings.extend(smile.notes.iter().cloned());
         for (i, distance) in &smile.excluded {
             // `distance` is fitted smile minus quote: negative when the quote is above.
@@ -199,6 +218,7 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
             flagged_quotes,
             smile,
             replication,
+            level_errors,
             forward_variance: f64::NAN,
             butterfly,
             calendar_ok: true,

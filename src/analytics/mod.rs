@@ -4,7 +4,8 @@
 //! Flow: validated [`slice::Slice`]s -> [`smile`] fit per expiry -> [`replication`]
 //! of variance, gamma and leverage swaps -> [`term`] structure and forward
 //! variance -> [`calibrate`] an affine forward-variance model ([`models`]) to the
-//! leverage swaps. [`analysis::analyze`] runs the whole chain; [`risk`] values seasoned
+//! leverage swaps; [`uncertainty`] puts standard errors on the levels.
+//! [`analysis::analyze`] runs the whole chain; [`risk`] values seasoned
 //! swap positions on its result, with [`realized`] variance from closes.
 
 pub mod analysis;
@@ -25,3 +26,4 @@ pub mod special;
 pub mod stats;
 pub mod term;
 pub mod tolerances;
+pub mod uncertainty;

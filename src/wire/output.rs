@@ -62,6 +62,18 @@ pub struct CurveDoc {
     pub gamma_swap_vol: Option<f64>,
     /// `gamma_swap - variance_swap`.
     pub leverage_swap: f64,
+    /// Standard error of `variance_swap` (annualised variance): the quotes' estimated
+    /// noise carried through the smile fit, the wings and the integral, and the spread
+    /// of the level over reasonable wing rules, in quadrature. Absent where the smile
+    /// method gives none (`monotone`) or for levels given rather than replicated.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub variance_swap_se: Option<f64>,
+    /// Standard error of `gamma_swap`, as `variance_swap_se`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub gamma_swap_se: Option<f64>,
+    /// Standard error of `leverage_swap`, as `variance_swap_se`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub leverage_swap_se: Option<f64>,
     /// Forward variance on the period ending at this expiry.
     pub forward_variance: f64,
     /// Data quality of the slice.
@@ -296,6 +308,9 @@ pub fn analysis_doc(input: &ValidSnapshot, analysis: &Analysis) -> AnalysisDoc {
                 gamma_swap: l.gamma,
                 gamma_swap_vol: vol_of(l.gamma),
                 leverage_swap: l.leverage,
+                variance_swap_se: s.level_errors.map(|e| e.total()[0]),
+                gamma_swap_se: s.level_errors.map(|e| e.total()[1]),
+                leverage_swap_se: s.level_errors.map(|e| e.total()[2]),
                 forward_variance: s.forward_variance,
                 quality: Some(QualityDoc {
                     points: s.points,
@@ -375,6 +390,9 @@ pub fn swaps_doc(input: &ValidSwaps, fit: Option<&FitOutcome>) -> AnalysisDoc {
             gamma_swap: input.gamma_swap[i],
             gamma_swap_vol: vol_of(input.gamma_swap[i]),
             leverage_swap: t.leverage_swap[i],
+            variance_swap_se: None,
+            gamma_swap_se: None,
+            leverage_swap_se: None,
             forward_variance: xi.get(i).cloned().unwrap_or(f64::NAN),
             quality: None,
             smile: None,

@@ -184,6 +184,8 @@ pub struct FittedSmile {
     pub quoted_range: (f64, f64),
     /// What the fit has to say about itself, in words (a method replaced by another).
     pub notes: Vec<String>,
+    /// What the levels' standard errors need from the fit (SVI-based smiles only).
+    pub noise: Option<crate::analytics::uncertainty::QuoteNoise>,
 }
 
 /// A kept quote further than this many half spreads from the fitted smile is named as

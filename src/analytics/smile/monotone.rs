@@ -232,6 +232,7 @@ pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
         suspect: Vec::new(),
         quoted_range: range,
         notes: Vec::new(),
+        noise: None,
     })
 }
 

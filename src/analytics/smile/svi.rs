@@ -14,6 +14,7 @@ use crate::analytics::tolerances::{
     SVI_OUTER_MAX_DAMPING_TRIES, SVI_OUTER_MAX_ITERATIONS, SVI_OUTER_PREDICTED_GAIN_TOL, SVI_OUTER_STEP_TOL,
     SVI_WARM_START_ACCEPT_SPREADS,
 };
+use crate::analytics::uncertainty::QuoteNoise;
 
 /// Ridge on the wing slopes `s_L^2 + s_R^2`, in units where a slope `s` costs like
 /// every quote missing by `s` times the ATM standard deviation in total variance.
@@ -58,6 +59,13 @@ impl SviParams {
             dw: self.b * (self.rho + x * inv_r),
             d2w: self.b * self.sigma * self.sigma * (inv_r * inv_r * inv_r),
         }
+    }
+
+    /// Derivatives of the total variance at `k` in `(a, b, rho, m, sigma)`.
+    pub fn total_variance_gradient(&self, k: f64) -> [f64; 5] {
+        let x = k - self.m;
+        let r = (x * x + self.sigma * self.sigma).sqrt().max(f64::MIN_POSITIVE);
+        [1.0, self.rho * x + r, self.b * x, -self.b * (self.rho + x / r), self.b * self.sigma / r]
     }
 
     /// Asymptotic slopes: `b (1 - rho)` on the left (magnitude), `b (1 + rho)` on the right.
@@ -658,7 +666,7 @@ fn fit_weighted(
 /// Weights of the quotes in total variance, `1 / (2 vol tau h)^2` with `h` the half
 /// spread (or the median half spread, or [`DEFAULT_HALF_SPREAD_VOL`]), normalised to a
 /// mean of 1, and the normalisation.
-fn spread_weights(quotes: &[SmileQuote], tau: f64) -> (Vec<f64>, f64) {
+pub(crate) fn spread_weights(quotes: &[SmileQuote], tau: f64) -> (Vec<f64>, f64) {
     let spreads = quotes.iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0);
     let default_spread = median_of(spreads).unwrap_or(DEFAULT_HALF_SPREAD_VOL);
     // A vol error e maps to a total-variance error of about 2 vol tau e.
@@ -758,7 +766,20 @@ pub fn fit_from(
     candidates.sort_by_key(|c| c.0);
     let curve = SmileCurve::Svi(params);
     // `candidates` is sorted by quote index here.
-    let rmse = rmse_vol(&curve, quotes, tau, (0..n).filter(|i| candidates.binary_search_by_key(i, |c| c.0).is_err()));
+    let kept: Vec<usize> = (0..n).filter(|i| candidates.binary_search_by_key(i, |c| c.0).is_err()).collect();
+    let rmse = rmse_vol(&curve, quotes, tau, kept.iter().copied());
+    let (weights, _) = spread_weights(quotes, tau);
+    let noise = QuoteNoise {
+        k: kept.iter().map(|&i| quotes[i].k).collect(),
+        residual: kept
+            .iter()
+            .map(|&i| quotes[i].vol * quotes[i].vol * tau - params.total_variance(quotes[i].k))
+            .collect(),
+        scale: kept.iter().map(|&i| 2.0 * quotes[i].vol * tau / weights[i].sqrt()).collect(),
+        svi_weights: kept.iter().map(|&i| weights[i]).collect(),
+        svi: params,
+        spline: None,
+    };
     Ok(FittedSmile {
         curve,
         rmse_vol: rmse,
@@ -766,6 +787,7 @@ pub fn fit_from(
         suspect: Vec::new(),
         quoted_range: (quotes[0].k, quotes[n - 1].k),
         notes: Vec::new(),
+        noise: Some(noise),
     })
 }
 

@@ -23,6 +23,7 @@ use super::svi::{self, SlopePrior, SviParams, WarmStart};
 use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
 use crate::analytics::smoothing_spline::{self, NaturalCubic};
 use crate::analytics::tolerances::{MAX_WING_SLOPE, SPLINE_REPLICATION_REL_TOL};
+use crate::analytics::uncertainty::QuoteNoise;
 
 /// Tukey bisquare cut, in half spreads: a quote this far from the fit gets no weight
 /// (common practice, no source; 3 half spreads is where a quote leaves its own market).
@@ -145,6 +146,25 @@ impl SviSpline {
     /// Asymptotic wing slopes (left as a magnitude, right).
     pub fn wing_slopes(&self) -> (f64, f64) {
         (self.left.beta, self.right.beta)
+    }
+
+    /// The same curve with other reasonable wings, for the wing part of the levels'
+    /// standard errors: both wings bending from their edge value and slope to the SVI
+    /// base's asymptotic slopes, and both the straight lines of their edge slopes.
+    pub fn alternative_wings(&self) -> [SviSpline; 2] {
+        let (svi_left, svi_right) = self.svi.wing_slopes();
+        let outward_slope = |wing: &SqrtWing| wing.direction * wing.point(wing.edge).dw;
+        let rebuild = |wing: &SqrtWing, beta: f64| {
+            SqrtWing::with_asymptote(wing.edge, wing.direction, wing.value, outward_slope(wing), beta)
+        };
+        let to_svi =
+            SviSpline { left: rebuild(&self.left, svi_left), right: rebuild(&self.right, svi_right), ..self.clone() };
+        let straight = SviSpline {
+            left: rebuild(&self.left, outward_slope(&self.left)),
+            right: rebuild(&self.right, outward_slope(&self.right)),
+            ..self.clone()
+        };
+        [to_svi, straight]
     }
 
     /// Where the wings begin: the outermost kept quotes.
@@ -288,7 +308,8 @@ const ARBITRAGE_SMOOTHING_STEPS: usize = 10;
 
 /// The curve with a residual spline smoothed just enough to leave no butterfly
 /// arbitrage over the quotes ([`super::butterfly_over_quotes`]) where cross-validation
-/// left some: the smoothing grows a hundredfold a step until the check passes. Without
+/// left some: the smoothing grows a hundredfold a step until the check passes. Returns
+/// the curve and its smoothing. Without
 /// bid/ask cross-validation can take a few wiggles of quote noise for shape; the demo
 /// day's 60-quote smiles (0.08 vol points of noise) showed Durrleman's `g` down to -1.5
 /// on three expiries where the SVI base has none. When no step passes (the base
@@ -299,11 +320,11 @@ fn arbitrage_free_smoothing(
     asymptotes: [Option<f64>; 2],
     noisy: bool,
     quoted_range: (f64, f64),
-) -> SmileCurve {
+) -> (SmileCurve, f64) {
     if super::butterfly_over_quotes(&curve, quoted_range).is_none() {
-        return curve;
+        return (curve, residual.lambda);
     }
-    let Some(base) = curve.svi_base().copied() else { return curve };
+    let Some(base) = curve.svi_base().copied() else { return (curve, residual.lambda) };
     let [x, y, weight] = &residual.data;
     let mut lambda = residual.lambda.max(f64::MIN_POSITIVE);
     for _ in 0..ARBITRAGE_SMOOTHING_STEPS {
@@ -311,10 +332,10 @@ fn arbitrage_free_smoothing(
         let Ok(smoother) = smoothing_spline::fit(x, y, weight, lambda) else { break };
         let candidate = SmileCurve::SviSpline(SviSpline::assemble(base, smoother.spline, asymptotes, noisy));
         if super::butterfly_over_quotes(&candidate, quoted_range).is_none() {
-            return candidate;
+            return (candidate, lambda);
         }
     }
-    curve
+    (curve, residual.lambda)
 }
 
 /// Largest asymptotic wing slope, as a multiple of the SVI base's asymptotic slope.
@@ -416,8 +437,8 @@ pub fn fit(
                 break;
             }
             kept = next;
-            let weights: Vec<f64> = (0..n).map(|i| if kept.binary_search(&i).is_ok() { 1.0 } else { 0.0 }).collect();
-            params = svi::fit_reweighted(quotes, tau, &weights, prior, WarmStart::from_params(&params));
+            robustness = (0..n).map(|i| if kept.binary_search(&i).is_ok() { 1.0 } else { 0.0 }).collect();
+            params = svi::fit_reweighted(quotes, tau, &robustness, prior, WarmStart::from_params(&params));
             spline = residual_spline(quotes, tau, &params, &kept, &noise);
         }
     }
@@ -433,12 +454,14 @@ pub fn fit(
     let noisy = !with_spreads
         && spline.as_ref().and_then(|r| r.noise_estimate).is_some_and(|v| v > super::MONOTONE_MAX_NOISE_VOL);
     let quoted_range = (quotes[0].k, quotes[n - 1].k);
-    let curve = match spline {
+    let (curve, spline_stage) = match spline {
         Some(r) => {
             let first = SmileCurve::SviSpline(SviSpline::assemble(params, r.spline.clone(), asymptotes, noisy));
-            arbitrage_free_smoothing(first, &r, asymptotes, noisy, quoted_range)
+            let (curve, lambda) = arbitrage_free_smoothing(first, &r, asymptotes, noisy, quoted_range);
+            let [_, _, weights] = r.data;
+            (curve, Some((weights, lambda)))
         }
-        None => SmileCurve::Svi(params),
+        None => (SmileCurve::Svi(params), None),
     };
     let excluded: Vec<(usize, f64)> = (0..n)
         .filter(|i| kept.binary_search(i).is_err())
@@ -463,7 +486,19 @@ pub fn fit(
         }
         other => other,
     };
-    Ok(FittedSmile { curve, rmse_vol: rmse, excluded, suspect, quoted_range, notes: Vec::new() })
+    let (spread_weights, _) = svi::spread_weights(quotes, tau);
+    let noise = QuoteNoise {
+        k: kept.iter().map(|&i| quotes[i].k).collect(),
+        residual: kept
+            .iter()
+            .map(|&i| quotes[i].vol * quotes[i].vol * tau - curve.total_variance(quotes[i].k))
+            .collect(),
+        scale: kept.iter().map(|&i| 2.0 * quotes[i].vol * tau * noise[i]).collect(),
+        svi_weights: kept.iter().map(|&i| spread_weights[i] * robustness[i]).collect(),
+        svi: params,
+        spline: spline_stage,
+    };
+    Ok(FittedSmile { curve, rmse_vol: rmse, excluded, suspect, quoted_range, notes: Vec::new(), noise: Some(noise) })
 }
 
 #[cfg(test)]

@@ -1,0 +1,354 @@
+//! Standard errors of the replicated swap levels: how far the quotes' own noise and
+//! the choice of wing can move each level.
+//!
+//! **Quote noise.** The smile's total variance at the kept quotes is, to first order,
+//! a linear map `T` of the quoted total variances `y`: the SVI stage projects `y` onto
+//! the tangent space of SVI at its fit (`P = A (A' W A)^-1 A' W`, `A` the Jacobian of
+//! total variance in the five raw parameters, `W` the stage's weights), and the
+//! residual spline smooths what is left with its hat matrix `H`, so
+//! `T = P + H (I - P)`. A level is, to first order, `L = sum_j c_j g_j` over the
+//! fitted values `g_j` at the quotes, with `c_j` the level's sensitivity to total
+//! variance near quote `j` (the replication integrand's derivative in total
+//! variance, times the quote's share of log-moneyness, plus the wing beyond an edge
+//! quote, which moves with it). With independent quote noise of standard deviation
+//! `s_i` in total variance, `Var L = sum_i (T' c)_i^2 s_i^2`. `T' c` costs one more
+//! spline solve (`H' c = W_s (W_s + lambda K)^-1 c`, the spline of the data
+//! `c / W_s` with the same weights and smoothing) and a 5 x 5 solve.
+//!
+//! **Wings.** Beyond the outermost kept quotes the level rests on a wing rule. The
+//! wing part is half the spread of the level over reasonable rules (the fitted wing,
+//! the wing bending to the SVI base's slope, and the straight line of the edge slope).
+//!
+//! The two parts are independent and add in quadrature. Both are first-order
+//! estimates: the noise estimate itself is uncertain on few quotes, and a wing rule
+//! none of the alternatives resembles is not covered.
+
+use super::black::otm_price_vega;
+use super::replication::levels_beyond;
+use super::smile::svi::SviParams;
+use super::smile::{FittedSmile, SmileCurve};
+use super::smoothing_spline;
+
+/// What the smile fit knows about its quotes' noise and its own linear response to
+/// them (kept quotes only, in increasing log-moneyness).
+#[derive(Debug, Clone, PartialEq)]
+pub struct QuoteNoise {
+    /// Log-moneyness of the kept quotes.
+    pub k: Vec<f64>,
+    /// Quoted minus fitted total variance at each kept quote.
+    pub residual: Vec<f64>,
+    /// Each kept quote's noise unit in total variance (`2 vol tau` times its half
+    /// spread with bid/ask, or times one vol without): the noise is estimated as one
+    /// multiple of these units for all quotes.
+    pub scale: Vec<f64>,
+    /// Weights of the SVI stage (relative; zero leaves a quote out).
+    pub svi_weights: Vec<f64>,
+    /// The SVI base.
+    pub svi: SviParams,
+    /// The residual spline's weights and smoothing `lambda`, when the smile has one.
+    pub spline: Option<(Vec<f64>, f64)>,
+}
+
+/// Standard errors of the three levels `[variance swap, gamma swap, leverage swap]`.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LevelErrors {
+    /// From the quotes' noise.
+    pub quote_noise: [f64; 3],
+    /// From the wing rule.
+    pub wings: [f64; 3],
+}
+
+impl LevelErrors {
+    /// Both parts in quadrature.
+    pub fn total(&self) -> [f64; 3] {
+        std::array::from_fn(|l| self.quote_noise[l].hypot(self.wings[l]))
+    }
+}
+
+/// Derivative of the three levels' integrands in total variance at `k`, per unit of
+/// log-moneyness: `(2 / tau) [e^-k, 1, 1 - e^-k] d otm / d w`.
+pub fn integrand_sensitivity(k: f64, w: f64, tau: f64) -> [f64; 3] {
+    let s = w.max(1e-300).sqrt();
+    let vega_w = otm_price_vega(k, s) / (2.0 * s);
+    let scale = 2.0 / tau * vega_w;
+    let e = (-k).exp();
+    [scale * e, scale, scale * (1.0 - e)]
+}
+
+/// Sensitivity of each level to the fitted total variance near each kept quote
+/// `knots[j]` of a smile `w(k)`: the integrand's sensitivity at the quote times its
+/// share of log-moneyness (half the distance to each neighbour), and for the two
+/// edge quotes also the integral of the sensitivity over their wing (which moves
+/// with the edge value), integrated to ten ATM deviations beyond the edge.
+pub fn knot_sensitivities(knots: &[f64], w: impl Fn(f64) -> f64, tau: f64) -> Vec<[f64; 3]> {
+    let n = knots.len();
+    let mut out = Vec::with_capacity(n);
+    for j in 0..n {
+        let left = if j == 0 { knots[0] } else { 0.5 * (knots[j - 1] + knots[j]) };
+        let right = if j + 1 == n { knots[n - 1] } else { 0.5 * (knots[j] + knots[j + 1]) };
+        let at = integrand_sensitivity(knots[j], w(knots[j]), tau);
+        out.push(at.map(|x| x * (right - left)));
+    }
+    if n == 0 {
+        return out;
+    }
+    let reach = 10.0 * w(0.0).max(1e-8).sqrt();
+    for (j, direction) in [(0, -1.0), (n - 1, 1.0)] {
+        let edge = knots[j];
+        let wing = wing_integral(|k| integrand_sensitivity(k, w(k), tau), edge, edge + direction * reach);
+        for l in 0..3 {
+            out[j][l] += wing[l];
+        }
+    }
+    out
+}
+
+/// `integral f` from `a` to `b` (either order, signed to the outward direction's
+/// length) by composite Simpson on 64 panels: the sensitivity is smooth and its
+/// integral is only an error-bar weight.
+fn wing_integral(f: impl Fn(f64) -> [f64; 3], a: f64, b: f64) -> [f64; 3] {
+    const PANELS: usize = 64;
+    let (lo, hi) = if a < b { (a, b) } else { (b, a) };
+    let h = (hi - lo) / PANELS as f64;
+    let mut sum = [0.0; 3];
+    for i in 0..=PANELS {
+        let weight = if i == 0 || i == PANELS {
+            1.0
+        } else if i % 2 == 1 {
+            4.0
+        } else {
+            2.0
+        };
+        let v = f(lo + h * i as f64);
+        for l in 0..3 {
+            sum[l] += weight * v[l];
+        }
+    }
+    sum.map(|s| s * h / 3.0)
+}
+
+/// Standard deviation of each level from the quotes' noise, for level sensitivities
+/// `c` at the kept quotes (see the module documentation), with the noise estimated
+/// from the residuals: `s^2 = sum (r_i / u_i)^2 / (n - trace T)` in the quotes' noise
+/// units `u_i`, the residual degrees of freedom counting the SVI stage's five
+/// parameters and the spline's (`trace T = trace P + trace H - trace H P`). A fit with
+/// no residual degrees of freedom (interpolation) has no noise to estimate: zero.
+/// `None` when a solve fails.
+pub fn quote_noise_errors(noise: &QuoteNoise, c: &[[f64; 3]]) -> Option<[f64; 3]> {
+    let n = noise.k.len();
+    if n != c.len() || n != noise.residual.len() || n != noise.scale.len() || n != noise.svi_weights.len() {
+        return None;
+    }
+    let jacobian: Vec<[f64; 5]> = noise.k.iter().map(|&k| noise.svi.total_variance_gradient(k)).collect();
+    let normal = normal_matrix(&jacobian, &noise.svi_weights)?;
+    let sd = noise_sd(noise, &jacobian, &normal)?;
+    let mut out = [0.0; 3];
+    for (l, slot) in out.iter_mut().enumerate() {
+        let u: Vec<f64> = c.iter().map(|row| row[l]).collect();
+        let variance: f64 =
+            response(noise, &jacobian, &normal, &u)?.iter().zip(&sd).map(|(r, s)| (r * s).powi(2)).sum();
+        *slot = variance.sqrt();
+    }
+    Some(out)
+}
+
+/// `T' u = P' u + H' u - P' H' u`: how the level `u' g` responds to each quote.
+fn response(
+    noise: &QuoteNoise,
+    jacobian: &[[f64; 5]],
+    normal_inverse: &nalgebra::Matrix5<f64>,
+    u: &[f64],
+) -> Option<Vec<f64>> {
+    let p_u = projection_transpose_times(jacobian, &noise.svi_weights, normal_inverse, u);
+    Some(match &noise.spline {
+        Some((weights, lambda)) => {
+            let h_u = hat_transpose_times(&noise.k, weights, *lambda, u)?;
+            let p_h_u = projection_transpose_times(jacobian, &noise.svi_weights, normal_inverse, &h_u);
+            (0..u.len()).map(|i| p_u[i] + h_u[i] - p_h_u[i]).collect()
+        }
+        None => p_u,
+    })
+}
+
+/// Each kept quote's estimated noise in total variance (see [`quote_noise_errors`]).
+fn noise_sd(noise: &QuoteNoise, jacobian: &[[f64; 5]], normal_inverse: &nalgebra::Matrix5<f64>) -> Option<Vec<f64>> {
+    let n = noise.k.len();
+    let weights = &noise.svi_weights;
+    // trace P = sum_i w_i a_i' N^-1 a_i.
+    let p_row = |i: usize| -> nalgebra::Vector5<f64> {
+        normal_inverse * nalgebra::Vector5::from_column_slice(&jacobian[i]) * weights[i]
+    };
+    let trace_p: f64 = (0..n).map(|i| nalgebra::Vector5::from_column_slice(&jacobian[i]).dot(&p_row(i))).sum();
+    let (trace_h, trace_hp) = match &noise.spline {
+        Some((spline_weights, lambda)) => {
+            let fit = smoothing_spline::fit(&noise.k, &noise.residual, spline_weights, *lambda).ok()?;
+            let trace_h = fit.degrees_of_freedom();
+            // (H P)_ii = (H A)_i . N^-1 a_i w_i, H applied to each column of A.
+            let mut h_a = vec![[0.0; 5]; n];
+            for a in 0..5 {
+                let column: Vec<f64> = jacobian.iter().map(|row| row[a]).collect();
+                let smoothed = smoothing_spline::fit(&noise.k, &column, spline_weights, *lambda).ok()?;
+                for (row, v) in h_a.iter_mut().zip(smoothed.spline.values()) {
+                    row[a] = *v;
+                }
+            }
+            let trace_hp: f64 = (0..n).map(|i| nalgebra::Vector5::from_column_slice(&h_a[i]).dot(&p_row(i))).sum();
+            (trace_h, trace_hp)
+        }
+        None => (0.0, 0.0),
+    };
+    let residual_dof = n as f64 - (trace_p + trace_h - trace_hp);
+    let sum_sq: f64 = noise.residual.iter().zip(&noise.scale).map(|(r, u)| (r / u).powi(2)).sum();
+    let s = if residual_dof > MIN_RESIDUAL_DOF { (sum_sq / residual_dof).sqrt() } else { 0.0 };
+    Some(noise.scale.iter().map(|u| s * u).collect())
+}
+
+/// Fewest residual degrees of freedom a noise estimate is made from: below it the fit
+/// (all but) interpolates and the quotes say nothing about their noise.
+pub const MIN_RESIDUAL_DOF: f64 = 0.5;
+
+/// `H' u = W (W + lambda K)^-1 u`: the smoothing spline of the data `u / W` with
+/// weights `W` and smoothing `lambda`, times `W`.
+fn hat_transpose_times(k: &[f64], weights: &[f64], lambda: f64, u: &[f64]) -> Option<Vec<f64>> {
+    let data: Vec<f64> = u.iter().zip(weights).map(|(u, w)| u / w).collect();
+    let fit = smoothing_spline::fit(k, &data, weights, lambda).ok()?;
+    Some(fit.spline.values().iter().zip(weights).map(|(g, w)| g * w).collect())
+}
+
+/// `A' W A` with a ridge of 1e-12 of its trace (a parameter the quotes do not pin,
+/// such as `m` on a flat smile, then contributes nothing instead of failing), as its
+/// inverse.
+fn normal_matrix(jacobian: &[[f64; 5]], weights: &[f64]) -> Option<nalgebra::Matrix5<f64>> {
+    let mut normal = nalgebra::Matrix5::<f64>::zeros();
+    for (row, w) in jacobian.iter().zip(weights) {
+        for a in 0..5 {
+            for b in 0..5 {
+                normal[(a, b)] += w * row[a] * row[b];
+            }
+        }
+    }
+    let ridge = 1e-12 * normal.trace().max(f64::MIN_POSITIVE);
+    for a in 0..5 {
+        normal[(a, a)] += ridge;
+    }
+    normal.try_inverse()
+}
+
+/// `P' u = W A (A' W A)^-1 A' u`, with the inverse of `A' W A` given.
+fn projection_transpose_times(
+    jacobian: &[[f64; 5]],
+    weights: &[f64],
+    normal_inverse: &nalgebra::Matrix5<f64>,
+    u: &[f64],
+) -> Vec<f64> {
+    let mut a_u = nalgebra::Vector5::<f64>::zeros();
+    for (row, u) in jacobian.iter().zip(u) {
+        for a in 0..5 {
+            a_u[a] += row[a] * u;
+        }
+    }
+    let z = normal_inverse * a_u;
+    jacobian.iter().zip(weights).map(|(row, w)| w * (0..5).map(|a| row[a] * z[a]).sum::<f64>()).collect()
+}
+
+/// Half the spread of a level over wing rules: `levels` holds the level under each
+/// rule (the fitted one among them).
+pub fn wing_spread(levels: &[[f64; 3]]) -> [f64; 3] {
+    std::array::from_fn(|l| {
+        let (lo, hi) =
+            levels.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| (lo.min(v[l]), hi.max(v[l])));
+        if lo.is_finite() && hi.is_finite() {
+            0.5 * (hi - lo)
+        } else {
+            0.0
+        }
+    })
+}
+
+/// Standard errors of a fitted smile's three levels at expiry `tau` (years): `None`
+/// for a smile that records no [`QuoteNoise`] (the monotone cubic) or when a solve
+/// fails. The wing part is computed for a smile with a residual spline (the default),
+/// whose wings have alternatives ([`crate::analytics::smile::svi_spline::SviSpline::alternative_wings`]); raw SVI's wings
+/// are its own formula, and its wing part is zero.
+pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
+    let noise = smile.noise.as_ref()?;
+    let curve = &smile.curve;
+    let c = knot_sensitivities(&noise.k, |k| curve.total_variance(k), tau);
+    let quote_noise = quote_noise_errors(noise, &c)?;
+    let wings = match curve {
+        SmileCurve::SviSpline(spline) => {
+            let edges = (spline.edges()[0], spline.edges()[1]);
+            let mut levels = vec![levels_beyond(curve, edges, tau)];
+            for alternative in spline.alternative_wings() {
+                levels.push(levels_beyond(&SmileCurve::SviSpline(alternative), edges, tau));
+            }
+            wing_spread(&levels)
+        }
+        _ => [0.0; 3],
+    };
+    Some(LevelErrors { quote_noise, wings })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn interpolation_passes_each_quote_straight_through_and_leaves_no_noise_estimate() {
+        // Identity: with the spline interpolating (lambda -> 0) H = I and T' = I
+        // whatever the SVI stage does; and with no residual degrees of freedom left
+        // there is no noise to estimate.
+        let k: Vec<f64> = (0..12).map(|i| -0.3 + 0.05 * i as f64).collect();
+        let svi = SviParams { a: 0.01, b: 0.1, rho: -0.4, m: 0.0, sigma: 0.2 };
+        let residual: Vec<f64> = (0..12).map(|i| if i % 2 == 0 { 1e-4 } else { -1e-4 }).collect();
+        let noise = QuoteNoise {
+            k: k.clone(),
+            residual,
+            scale: vec![1.0; 12],
+            svi_weights: vec![1.0; 12],
+            svi,
+            spline: Some((vec![1.0; 12], 1e-14)),
+        };
+        let jacobian: Vec<[f64; 5]> = k.iter().map(|&k| svi.total_variance_gradient(k)).collect();
+        let normal = normal_matrix(&jacobian, &noise.svi_weights).expect("normal");
+        let u: Vec<f64> = (0..12).map(|i| 1.0 + i as f64).collect();
+        let t_u = response(&noise, &jacobian, &normal, &u).expect("response");
+        for (got, want) in t_u.iter().zip(&u) {
+            assert!((got - want).abs() < 1e-8 * want, "{got} vs {want}");
+        }
+        let sd = noise_sd(&noise, &jacobian, &normal).expect("sd");
+        assert!(sd.iter().all(|s| s.abs() < 1e-300));
+    }
+
+    #[test]
+    fn a_pure_svi_fit_averages_noise_down() {
+        // Identity: without a spline T = P, an orthogonal projection for equal weights
+        // whose range holds the constants (SVI's `a`), so P' 1 = 1 and the sum of the
+        // fitted values has the raw sum's variance, n s^2.
+        let k: Vec<f64> = (0..30).map(|i| -0.5 + 0.035 * i as f64).collect();
+        let svi = SviParams { a: 0.01, b: 0.1, rho: -0.4, m: 0.02, sigma: 0.2 };
+        // Residuals of size 1e-3 with 25 degrees of freedom left: s^2 = 30e-6 / 25.
+        let residual: Vec<f64> = (0..30).map(|i| if i % 2 == 0 { 1e-3 } else { -1e-3 }).collect();
+        let noise =
+            QuoteNoise { k: k.clone(), residual, scale: vec![1.0; 30], svi_weights: vec![1.0; 30], svi, spline: None };
+        let s = (30e-6f64 / 25.0).sqrt();
+        let c = vec![[1.0, 1.0, 1.0]; 30];
+        let got = quote_noise_errors(&noise, &c).expect("errors");
+        let want = s * (30.0f64).sqrt();
+        // 1e-6: the ridge of 1e-12 of the trace, amplified by the normal matrix's
+        // condition (about 1e5 here), moves the projection by a few 1e-9.
+        assert!((got[0] - want).abs() < 1e-6 * want, "{} vs {want}", got[0]);
+        // A single quote's sensitivity is spread over five directions: less than its
+        // own noise.
+        let mut one = vec![[0.0; 3]; 30];
+        one[15] = [1.0; 3];
+        let single = quote_noise_errors(&noise, &one).expect("errors");
+        assert!(single[0] < s && single[0] > s * (1.0 / 30.0f64).sqrt());
+    }
+
+    #[test]
+    fn the_wing_part_is_half_the_spread() {
+        let got = wing_spread(&[[1.0, 2.0, 0.0], [1.2, 1.0, 0.0], [0.9, 2.0, 0.0]]);
+        assert!((got[0] - 0.15).abs() < 1e-15 && (got[1] - 0.5).abs() < 1e-15 && got[2].abs() < 1e-300);
+    }
+}
