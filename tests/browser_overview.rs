@@ -83,6 +83,9 @@ async fn overview_page_renders_charts_without_script_errors() {
     assert!(param.contains("<svg") && param.contains("<polyline"), "parameter history drawn with paths");
     assert!(dom.contains("rough_heston") && dom.contains("hurst"), "fit parameters shown");
     assert!(dom.contains("data quality"), "quality section shown");
+    assert!(dom.contains("variance swaps") && dom.contains("± 2 se (vol pts)"), "levels with standard errors shown");
+    assert!(dom.matches("<td>± ").count() >= 30, "a standard error on every expiry of the demo day");
+    assert!(dom.contains("flagged quotes"), "flagged quotes section shown");
     for marker in ["Uncaught", "SyntaxError", "TypeError", "ReferenceError", ":ERROR:CONSOLE"] {
         assert!(!log.contains(marker), "script error in the browser log ({marker}):\n{log}");
     }
