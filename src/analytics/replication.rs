@@ -9,7 +9,7 @@
 
 use super::black::{mirrored_call, mirrored_calls};
 use super::kronrod_table::GAUSS_KRONROD_21;
-use super::quadrature::{integrate_batches_with, KronrodRule, QuadratureTolerance, MAX_PANEL_NODES};
+use super::quadrature::{integrate_batches_with, KronrodRule, QuadratureTolerance, GAUSS_KRONROD_15, MAX_PANEL_NODES};
 use super::smile::SmileShape;
 use super::special::exp::exp;
 use super::tolerances::{MAX_ABS_LOG_MONEYNESS, OTM_PRICE_CUTOFF, REPLICATION_ABS_TOL, REPLICATION_MAX_EVALUATIONS};
@@ -345,36 +345,44 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
 }
 
 /// The three levels' contributions from beyond `edges` (below the first, above the
-/// second) of `curve` for an expiry `tau` years away: what a change of wing rule
-/// beyond those log-moneyness values changes. Integrated as [`replicate`] integrates
-/// its wings, in log-moneyness.
-pub fn levels_beyond<S: SmileShape + ?Sized>(curve: &S, edges: (f64, f64), tau: f64) -> [f64; 3] {
-    let integrand = |k: &[f64], out: &mut [[f64; 3]]| {
+/// second) under each of the curves `curves` (at most [`MAX_BEYOND_CURVES`]), for an
+/// expiry `tau` years away: what a change of wing rule beyond those log-moneyness
+/// values changes. The curves share one walk (the first curve's) and one quadrature,
+/// with the 7/15-point rule, to relative accuracy `relative` of each component (an
+/// error bar needs far less than the level itself).
+pub fn levels_beyond<S: SmileShape>(curves: &[S], edges: (f64, f64), tau: f64, relative: f64) -> Vec<[f64; 3]> {
+    let curves = &curves[..curves.len().min(MAX_BEYOND_CURVES)];
+    let Some(first) = curves.first() else { return Vec::new() };
+    let integrand = |k: &[f64], out: &mut [[f64; 3 * MAX_BEYOND_CURVES]]| {
         let n = k.len().min(out.len()).min(MAX_PANEL_NODES);
         let mut w = [0.0; MAX_PANEL_NODES];
-        curve.total_variances(&k[..n], &mut w[..n]);
         let mut call = [0.0; MAX_PANEL_NODES];
-        mirrored_calls(&k[..n], &w[..n], &mut call[..n]);
-        for i in 0..n {
-            out[i] = swap_weights(k[i], call[i]);
+        for (c, curve) in curves.iter().enumerate() {
+            curve.total_variances(&k[..n], &mut w[..n]);
+            mirrored_calls(&k[..n], &w[..n], &mut call[..n]);
+            for i in 0..n {
+                out[i][3 * c..3 * c + 3].copy_from_slice(&swap_weights(k[i], call[i]));
+            }
         }
     };
-    let first_step = |k: f64| WING_FIRST_STEP_DEVIATIONS * curve.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);
-    let (left, _) = wing_points(curve, edges.0, -1.0, first_step(edges.0));
-    let (right, _) = wing_points(curve, edges.1, 1.0, first_step(edges.1));
+    let first_step = |k: f64| WING_FIRST_STEP_DEVIATIONS * first.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);
+    let (left, _) = wing_points(first, edges.0, -1.0, first_step(edges.0));
+    let (right, _) = wing_points(first, edges.1, 1.0, first_step(edges.1));
     let mut left_breaks: Vec<f64> = left.iter().rev().cloned().collect();
     left_breaks.push(edges.0);
     let mut right_breaks = vec![edges.1];
     right_breaks.extend(right.iter().cloned());
-    let tol = QuadratureTolerance {
-        relative: curve.relative_tolerance(),
-        absolute: REPLICATION_ABS_TOL,
-        max_evaluations: REPLICATION_MAX_EVALUATIONS,
-    };
-    let left_q = integrate_batches_with(&REPLICATION_RULE, integrand, &left_breaks, tol);
-    let right_q = integrate_batches_with(&REPLICATION_RULE, integrand, &right_breaks, tol);
-    std::array::from_fn(|c| 2.0 / tau * (left_q.value[c] + right_q.value[c]))
+    let tol =
+        QuadratureTolerance { relative, absolute: REPLICATION_ABS_TOL, max_evaluations: REPLICATION_MAX_EVALUATIONS };
+    let left_q = integrate_batches_with(&GAUSS_KRONROD_15, integrand, &left_breaks, tol);
+    let right_q = integrate_batches_with(&GAUSS_KRONROD_15, integrand, &right_breaks, tol);
+    (0..curves.len())
+        .map(|c| std::array::from_fn(|l| 2.0 / tau * (left_q.value[3 * c + l] + right_q.value[3 * c + l])))
+        .collect()
 }
+
+/// Most curves [`levels_beyond`] takes at once.
+pub const MAX_BEYOND_CURVES: usize = 3;
 
 #[cfg(test)]
 mod tests {

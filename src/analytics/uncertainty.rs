@@ -141,12 +141,19 @@ pub fn quote_noise_errors(noise: &QuoteNoise, c: &[[f64; 3]]) -> Option<[f64; 3]
     }
     let jacobian: Vec<[f64; 5]> = noise.k.iter().map(|&k| noise.svi.total_variance_gradient(k)).collect();
     let normal = normal_matrix(&jacobian, &noise.svi_weights)?;
-    let sd = noise_sd(noise, &jacobian, &normal)?;
+    let smoother = match &noise.spline {
+        Some((weights, lambda)) => Some(smoothing_spline::Smoother::new(&noise.k, weights, *lambda).ok()?),
+        None => None,
+    };
+    let sd = noise_sd(noise, &jacobian, &normal, smoother.as_ref())?;
     let mut out = [0.0; 3];
     for (l, slot) in out.iter_mut().enumerate() {
         let u: Vec<f64> = c.iter().map(|row| row[l]).collect();
-        let variance: f64 =
-            response(noise, &jacobian, &normal, &u)?.iter().zip(&sd).map(|(r, s)| (r * s).powi(2)).sum();
+        let variance: f64 = response(noise, &jacobian, &normal, smoother.as_ref(), &u)
+            .iter()
+            .zip(&sd)
+            .map(|(r, s)| (r * s).powi(2))
+            .sum();
         *slot = variance.sqrt();
     }
     Some(out)
@@ -157,21 +164,27 @@ fn response(
     noise: &QuoteNoise,
     jacobian: &[[f64; 5]],
     normal_inverse: &nalgebra::Matrix5<f64>,
+    smoother: Option<&smoothing_spline::Smoother>,
     u: &[f64],
-) -> Option<Vec<f64>> {
+) -> Vec<f64> {
     let p_u = projection_transpose_times(jacobian, &noise.svi_weights, normal_inverse, u);
-    Some(match &noise.spline {
-        Some((weights, lambda)) => {
-            let h_u = hat_transpose_times(&noise.k, weights, *lambda, u)?;
+    match (smoother, &noise.spline) {
+        (Some(smoother), Some((weights, _))) => {
+            let h_u = hat_transpose_times(smoother, weights, u);
             let p_h_u = projection_transpose_times(jacobian, &noise.svi_weights, normal_inverse, &h_u);
             (0..u.len()).map(|i| p_u[i] + h_u[i] - p_h_u[i]).collect()
         }
-        None => p_u,
-    })
+        _ => p_u,
+    }
 }
 
 /// Each kept quote's estimated noise in total variance (see [`quote_noise_errors`]).
-fn noise_sd(noise: &QuoteNoise, jacobian: &[[f64; 5]], normal_inverse: &nalgebra::Matrix5<f64>) -> Option<Vec<f64>> {
+fn noise_sd(
+    noise: &QuoteNoise,
+    jacobian: &[[f64; 5]],
+    normal_inverse: &nalgebra::Matrix5<f64>,
+    smoother: Option<&smoothing_spline::Smoother>,
+) -> Option<Vec<f64>> {
     let n = noise.k.len();
     let weights = &noise.svi_weights;
     // trace P = sum_i w_i a_i' N^-1 a_i.
@@ -179,23 +192,22 @@ fn noise_sd(noise: &QuoteNoise, jacobian: &[[f64; 5]], normal_inverse: &nalgebra
         normal_inverse * nalgebra::Vector5::from_column_slice(&jacobian[i]) * weights[i]
     };
     let trace_p: f64 = (0..n).map(|i| nalgebra::Vector5::from_column_slice(&jacobian[i]).dot(&p_row(i))).sum();
-    let (trace_h, trace_hp) = match &noise.spline {
-        Some((spline_weights, lambda)) => {
+    let (trace_h, trace_hp) = match (&noise.spline, smoother) {
+        (Some((spline_weights, lambda)), Some(smoother)) => {
             let fit = smoothing_spline::fit(&noise.k, &noise.residual, spline_weights, *lambda).ok()?;
             let trace_h = fit.degrees_of_freedom();
             // (H P)_ii = (H A)_i . N^-1 a_i w_i, H applied to each column of A.
             let mut h_a = vec![[0.0; 5]; n];
             for a in 0..5 {
                 let column: Vec<f64> = jacobian.iter().map(|row| row[a]).collect();
-                let smoothed = smoothing_spline::fit(&noise.k, &column, spline_weights, *lambda).ok()?;
-                for (row, v) in h_a.iter_mut().zip(smoothed.spline.values()) {
-                    row[a] = *v;
+                for (row, v) in h_a.iter_mut().zip(smoother.smooth(&column)) {
+                    row[a] = v;
                 }
             }
             let trace_hp: f64 = (0..n).map(|i| nalgebra::Vector5::from_column_slice(&h_a[i]).dot(&p_row(i))).sum();
             (trace_h, trace_hp)
         }
-        None => (0.0, 0.0),
+        _ => (0.0, 0.0),
     };
     let residual_dof = n as f64 - (trace_p + trace_h - trace_hp);
     let sum_sq: f64 = noise.residual.iter().zip(&noise.scale).map(|(r, u)| (r / u).powi(2)).sum();
@@ -208,11 +220,10 @@ fn noise_sd(noise: &QuoteNoise, jacobian: &[[f64; 5]], normal_inverse: &nalgebra
 pub const MIN_RESIDUAL_DOF: f64 = 0.5;
 
 /// `H' u = W (W + lambda K)^-1 u`: the smoothing spline of the data `u / W` with
-/// weights `W` and smoothing `lambda`, times `W`.
-fn hat_transpose_times(k: &[f64], weights: &[f64], lambda: f64, u: &[f64]) -> Option<Vec<f64>> {
+/// weights `W` and the smoother's `lambda`, times `W`.
+fn hat_transpose_times(smoother: &smoothing_spline::Smoother, weights: &[f64], u: &[f64]) -> Vec<f64> {
     let data: Vec<f64> = u.iter().zip(weights).map(|(u, w)| u / w).collect();
-    let fit = smoothing_spline::fit(k, &data, weights, lambda).ok()?;
-    Some(fit.spline.values().iter().zip(weights).map(|(g, w)| g * w).collect())
+    smoother.smooth(&data).iter().zip(weights).map(|(g, w)| g * w).collect()
 }
 
 /// `A' W A` with a ridge of 1e-12 of its trace (a parameter the quotes do not pin,
@@ -265,6 +276,11 @@ pub fn wing_spread(levels: &[[f64; 3]]) -> [f64; 3] {
     })
 }
 
+/// Relative accuracy of the wing integrals behind the wing part: a tenth of the
+/// smallest spread worth reporting, a part in 1e4 of the level (rule of thumb, no
+/// source; the se is a first-order estimate to begin with).
+pub const WING_LEVEL_TOL: f64 = 1e-5;
+
 /// Standard errors of a fitted smile's three levels at expiry `tau` (years): `None`
 /// for a smile that records no [`QuoteNoise`] (the monotone cubic) or when a solve
 /// fails. The wing part is computed for a smile with a residual spline (the default),
@@ -278,11 +294,9 @@ pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
     let wings = match curve {
         SmileCurve::SviSpline(spline) => {
             let edges = (spline.edges()[0], spline.edges()[1]);
-            let mut levels = vec![levels_beyond(curve, edges, tau)];
-            for alternative in spline.alternative_wings() {
-                levels.push(levels_beyond(&SmileCurve::SviSpline(alternative), edges, tau));
-            }
-            wing_spread(&levels)
+            let [to_svi, straight] = spline.alternative_wings();
+            let curves = [curve.clone(), SmileCurve::SviSpline(to_svi), SmileCurve::SviSpline(straight)];
+            wing_spread(&levels_beyond(&curves, edges, tau, WING_LEVEL_TOL))
         }
         _ => [0.0; 3],
     };
@@ -312,11 +326,12 @@ mod tests {
         let jacobian: Vec<[f64; 5]> = k.iter().map(|&k| svi.total_variance_gradient(k)).collect();
         let normal = normal_matrix(&jacobian, &noise.svi_weights).expect("normal");
         let u: Vec<f64> = (0..12).map(|i| 1.0 + i as f64).collect();
-        let t_u = response(&noise, &jacobian, &normal, &u).expect("response");
+        let smoother = smoothing_spline::Smoother::new(&k, &[1.0; 12], 1e-14).expect("smoother");
+        let t_u = response(&noise, &jacobian, &normal, Some(&smoother), &u);
         for (got, want) in t_u.iter().zip(&u) {
             assert!((got - want).abs() < 1e-8 * want, "{got} vs {want}");
         }
-        let sd = noise_sd(&noise, &jacobian, &normal).expect("sd");
+        let sd = noise_sd(&noise, &jacobian, &normal, Some(&smoother)).expect("sd");
         assert!(sd.iter().all(|s| s.abs() < 1e-300));
     }
 
