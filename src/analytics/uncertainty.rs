@@ -103,6 +103,35 @@ pub fn knot_sensitivities(knots: &[f64], w: impl Fn(f64) -> f64, tau: f64) -> Ve
     out
 }
 
+/// Sensitivity of each level to the SVI parameters through wings that follow the SVI
+/// base beyond `edges`: the integral over each wing of the level's sensitivity to
+/// total variance times the change of SVI's total variance relative to its edge value
+/// (the edge value itself is counted with the edge quote).
+pub fn wing_parameter_sensitivity(
+    svi: &SviParams,
+    edges: (f64, f64),
+    w: impl Fn(f64) -> f64,
+    tau: f64,
+) -> [[f64; 5]; 3] {
+    let reach = 10.0 * w(0.0).max(1e-8).sqrt();
+    let mut out = [[0.0; 5]; 3];
+    for (edge, direction) in [(edges.0, -1.0), (edges.1, 1.0)] {
+        let at_edge = svi.total_variance_gradient(edge);
+        for a in 0..5 {
+            let integrand = |k: f64| {
+                let s = integrand_sensitivity(k, w(k), tau);
+                let g = svi.total_variance_gradient(k)[a] - at_edge[a];
+                [s[0] * g, s[1] * g, s[2] * g]
+            };
+            let part = wing_integral(integrand, edge, edge + direction * reach);
+            for l in 0..3 {
+                out[l][a] += part[l];
+            }
+        }
+    }
+    out
+}
+
 /// `integral f` from `a` to `b` (either order, signed to the outward direction's
 /// length) by composite Simpson on 64 panels: the sensitivity is smooth and its
 /// integral is only an error-bar weight.
@@ -128,13 +157,19 @@ fn wing_integral(f: impl Fn(f64) -> [f64; 3], a: f64, b: f64) -> [f64; 3] {
 }
 
 /// Standard deviation of each level from the quotes' noise, for level sensitivities
-/// `c` at the kept quotes (see the module documentation), with the noise estimated
+/// `c` at the kept quotes (see the module documentation) and to the SVI parameters
+/// directly `parameter_sensitivity` (per level; zero unless the wings follow SVI),
+/// with the noise estimated
 /// from the residuals: `s^2 = sum (r_i / u_i)^2 / (n - trace T)` in the quotes' noise
 /// units `u_i`, the residual degrees of freedom counting the SVI stage's five
 /// parameters and the spline's (`trace T = trace P + trace H - trace H P`). A fit with
 /// no residual degrees of freedom (interpolation) has no noise to estimate: zero.
 /// `None` when a solve fails.
-pub fn quote_noise_errors(noise: &QuoteNoise, c: &[[f64; 3]]) -> Option<[f64; 3]> {
+pub fn quote_noise_errors(
+    noise: &QuoteNoise,
+    c: &[[f64; 3]],
+    parameter_sensitivity: &[[f64; 5]; 3],
+) -> Option<[f64; 3]> {
     let n = noise.k.len();
     if n != c.len() || n != noise.residual.len() || n != noise.scale.len() || n != noise.svi_weights.len() {
         return None;
@@ -149,11 +184,14 @@ pub fn quote_noise_errors(noise: &QuoteNoise, c: &[[f64; 3]]) -> Option<[f64; 3]
     let mut out = [0.0; 3];
     for (l, slot) in out.iter_mut().enumerate() {
         let u: Vec<f64> = c.iter().map(|row| row[l]).collect();
-        let variance: f64 = response(noise, &jacobian, &normal, smoother.as_ref(), &u)
-            .iter()
-            .zip(&sd)
-            .map(|(r, s)| (r * s).powi(2))
-            .sum();
+        let mut r = response(noise, &jacobian, &normal, smoother.as_ref(), &u);
+        // Levels that move with SVI's parameters directly (wings that follow SVI):
+        // d' N^-1 A' W y responds to the quotes by W A N^-1 d.
+        let z = normal * nalgebra::Vector5::from_column_slice(&parameter_sensitivity[l]);
+        for (i, row) in jacobian.iter().enumerate() {
+            r[i] += noise.svi_weights[i] * (0..5).map(|a| row[a] * z[a]).sum::<f64>();
+        }
+        let variance: f64 = r.iter().zip(&sd).map(|(r, s)| (r * s).powi(2)).sum();
         *slot = variance.sqrt();
     }
     Some(out)
@@ -290,7 +328,14 @@ pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
     let noise = smile.noise.as_ref()?;
     let curve = &smile.curve;
     let c = knot_sensitivities(&noise.k, |k| curve.total_variance(k), tau);
-    let quote_noise = quote_noise_errors(noise, &c)?;
+    let parameters = match curve {
+        SmileCurve::SviSpline(spline) if spline.wings_from_svi => {
+            let edges = spline.edges();
+            wing_parameter_sensitivity(&spline.svi, (edges[0], edges[1]), |k| curve.total_variance(k), tau)
+        }
+        _ => [[0.0; 5]; 3],
+    };
+    let quote_noise = quote_noise_errors(noise, &c, &parameters)?;
     let wings = match curve {
         SmileCurve::SviSpline(spline) => {
             let edges = (spline.edges()[0], spline.edges()[1]);
@@ -348,7 +393,7 @@ mod tests {
             QuoteNoise { k: k.clone(), residual, scale: vec![1.0; 30], svi_weights: vec![1.0; 30], svi, spline: None };
         let s = (30e-6f64 / 25.0).sqrt();
         let c = vec![[1.0, 1.0, 1.0]; 30];
-        let got = quote_noise_errors(&noise, &c).expect("errors");
+        let got = quote_noise_errors(&noise, &c, &[[0.0; 5]; 3]).expect("errors");
         let want = s * (30.0f64).sqrt();
         // 1e-6: the ridge of 1e-12 of the trace, amplified by the normal matrix's
         // condition (about 1e5 here), moves the projection by a few 1e-9.
@@ -357,7 +402,7 @@ mod tests {
         // own noise.
         let mut one = vec![[0.0; 3]; 30];
         one[15] = [1.0; 3];
-        let single = quote_noise_errors(&noise, &one).expect("errors");
+        let single = quote_noise_errors(&noise, &one, &[[0.0; 5]; 3]).expect("errors");
         assert!(single[0] < s && single[0] > s * (1.0 / 30.0f64).sqrt());
     }
 

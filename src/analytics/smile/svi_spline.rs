@@ -112,6 +112,9 @@ pub struct SviSpline {
     /// Relative accuracy the replication integrals are held to on this curve (see
     /// `replication_tolerance`: a thousandth of what its misfit leaves open).
     pub replication_tolerance: f64,
+    /// True when the wings take their slope and curvature from the SVI base (noisy
+    /// quotes): they then move with SVI's parameters, not only with the edge value.
+    pub wings_from_svi: bool,
     correction: NaturalCubic,
     left: SqrtWing,
     right: SqrtWing,
@@ -224,7 +227,15 @@ impl SviSpline {
             };
         let left = wing(lo, -1.0, p_lo, c_lo, asymptotes[0], svi_left);
         let right = wing(hi, 1.0, p_hi, c_hi, asymptotes[1], svi_right);
-        Self { svi, replication_tolerance: SPLINE_REPLICATION_REL_TOL, correction, left, right, edges: [lo, hi] }
+        Self {
+            svi,
+            replication_tolerance: SPLINE_REPLICATION_REL_TOL,
+            wings_from_svi: noisy,
+            correction,
+            left,
+            right,
+            edges: [lo, hi],
+        }
     }
 }
 
