@@ -10,8 +10,10 @@
 //! fitted values `g_j` at the quotes, with `c_j` the level's sensitivity to total
 //! variance near quote `j` (the replication integrand's derivative in total
 //! variance, times the quote's share of log-moneyness, plus the wing beyond an edge
-//! quote, which moves with it). With independent quote noise of standard deviation
-//! `s_i` in total variance, `Var L = sum_i (T' c)_i^2 s_i^2`. `T' c` costs one more
+//! quote, which moves with it; and where the wings take their slope and curvature
+//! from the SVI base, their response to SVI's parameters). With independent quote
+//! noise of standard deviation `s_i` in total variance,
+//! `Var L = sum_i (T' c)_i^2 s_i^2`. `T' c` costs one more
 //! spline solve (`H' c = W_s (W_s + lambda K)^-1 c`, the spline of the data
 //! `c / W_s` with the same weights and smoothing) and a 5 x 5 solve.
 //!
@@ -20,8 +22,9 @@
 //! the wing bending to the SVI base's slope, and the straight line of the edge slope).
 //!
 //! The two parts are independent and add in quadrature. Both are first-order
-//! estimates: the noise estimate itself is uncertain on few quotes, and a wing rule
-//! none of the alternatives resembles is not covered.
+//! estimates: the noise estimate itself is uncertain on few quotes, the curve's error
+//! between clean quotes is not counted, and a wing rule none of the alternatives
+//! resembles is not covered.
 
 use super::black::otm_price_vega;
 use super::replication::levels_beyond;
