@@ -116,6 +116,24 @@ fn wing_points<S: SmileShape + ?Sized>(curve: &S, start: f64, direction: f64, fi
     }
 }
 
+/// The points each wing's walk visits from `edges` outward ([`wing_points`], the first
+/// step [`WING_FIRST_STEP_DEVIATIONS`] deviations of the edge's total variance), in
+/// increasing order and with the edge included, and whether the walk reached the price
+/// cutoff: `(left, reached)`, `(right, reached)`.
+#[allow(clippy::type_complexity)]
+fn wing_breaks<S: SmileShape + ?Sized>(curve: &S, edges: (f64, f64)) -> ((Vec<f64>, bool), (Vec<f64>, bool)) {
+    let first_step = |k: f64| WING_FIRST_STEP_DEVIATIONS * curve.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);
+    let (left, left_ok) = wing_points(curve, edges.0, -1.0, first_step(edges.0));
+    let (right, right_ok) = wing_points(curve, edges.1, 1.0, first_step(edges.1));
+    let mut left_breaks: Vec<f64> = Vec::with_capacity(left.len() + 1);
+    left_breaks.extend(left.iter().rev().cloned());
+    left_breaks.push(edges.0);
+    let mut right_breaks = Vec::with_capacity(right.len() + 1);
+    right_breaks.push(edges.1);
+    right_breaks.extend(right.iter().cloned());
+    ((left_breaks, left_ok), (right_breaks, right_ok))
+}
+
 /// From this `|k|` on, the leverage weight `1 - e^-k` is computed as written: the
 /// difference then loses at most a factor `e^0.5 / (e^0.5 - 1) < 2.6` in relative
 /// accuracy (a few ulps). Below it one `expm1` gives both `1 - e^-k` and `e^-k`.
@@ -287,9 +305,7 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
         }
     };
     let (k_lo, k_hi) = (quoted.0.min(0.0), quoted.1.max(0.0));
-    let first_step = |k: f64| WING_FIRST_STEP_DEVIATIONS * curve.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);
-    let (left, left_ok) = wing_points(curve, k_lo, -1.0, first_step(k_lo));
-    let (right, right_ok) = wing_points(curve, k_hi, 1.0, first_step(k_hi));
+    let ((left_breaks, left_ok), (right_breaks, right_ok)) = wing_breaks(curve, (k_lo, k_hi));
 
     let mut core_breaks: Vec<f64> = Vec::with_capacity(curve.kinks().len() + 3);
     core_breaks.extend(curve.kinks().iter().cloned().filter(|k| *k > k_lo && *k < k_hi));
@@ -307,12 +323,6 @@ pub fn replicate<S: SmileShape + ?Sized>(curve: &S, quoted: (f64, f64), tau: f64
         absolute: (relative * core.value[1].abs().min(core.value[0].abs())).max(REPLICATION_ABS_TOL),
         max_evaluations: REPLICATION_MAX_EVALUATIONS,
     };
-    let mut left_breaks: Vec<f64> = Vec::with_capacity(left.len() + 1);
-    left_breaks.extend(left.iter().rev().cloned());
-    left_breaks.push(k_lo);
-    let mut right_breaks = Vec::with_capacity(right.len() + 1);
-    right_breaks.push(k_hi);
-    right_breaks.extend(right.iter().cloned());
     let left_q = integrate_batches_with(&REPLICATION_RULE, integrand, &variable.wing_panels(&left_breaks), wing_tol);
     let right_q = integrate_batches_with(&REPLICATION_RULE, integrand, &variable.wing_panels(&right_breaks), wing_tol);
 
@@ -365,13 +375,7 @@ pub fn levels_beyond<S: SmileShape>(curves: &[S], edges: (f64, f64), tau: f64, r
             }
         }
     };
-    let first_step = |k: f64| WING_FIRST_STEP_DEVIATIONS * first.total_variance(k).max(1e-8).sqrt().clamp(0.02, 1.0);
-    let (left, _) = wing_points(first, edges.0, -1.0, first_step(edges.0));
-    let (right, _) = wing_points(first, edges.1, 1.0, first_step(edges.1));
-    let mut left_breaks: Vec<f64> = left.iter().rev().cloned().collect();
-    left_breaks.push(edges.0);
-    let mut right_breaks = vec![edges.1];
-    right_breaks.extend(right.iter().cloned());
+    let ((left_breaks, _), (right_breaks, _)) = wing_breaks(first, edges);
     let tol =
         QuadratureTolerance { relative, absolute: REPLICATION_ABS_TOL, max_evaluations: REPLICATION_MAX_EVALUATIONS };
     let left_q = integrate_batches_with(&GAUSS_KRONROD_15, integrand, &left_breaks, tol);

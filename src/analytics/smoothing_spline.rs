@@ -171,107 +171,15 @@ fn check(x: &[f64], y: &[f64], weight: &[f64]) -> Result<(), SmoothingError> {
 /// [`SmoothingError`] for unusable data or `lambda`.
 pub fn fit(x: &[f64], y: &[f64], weight: &[f64], lambda: f64) -> Result<SmoothingFit, SmoothingError> {
     check(x, y, weight)?;
-    if !(lambda.is_finite() && lambda >= 0.0) {
-        return Err(SmoothingError::NotPositiveDefinite);
-    }
     let n = x.len();
     let m = n - 2;
-    let h: Vec<f64> = x.windows(2).map(|p| p[1] - p[0]).collect();
-    // Column j of Q (interior knot j + 1) has entries at rows j, j + 1, j + 2; taken
-    // once, as are the inverse weights (divisions are most of this function's cost).
-    let columns: Vec<[f64; 3]> = (0..m)
-        .map(|j| {
-            let (a, b) = (1.0 / h[j], 1.0 / h[j + 1]);
-            [a, -a - b, b]
-        })
-        .collect();
+    let system = System::new(x, weight);
+    let factor = Factor::new(&system, lambda)?;
+    let gamma = factor.solve(system.q_transpose_times(y));
+    let (columns, inverse_weight) = (&system.columns, &system.inverse_weight);
     let q = |j: usize| columns[j];
-    let inverse_weight: Vec<f64> = weight.iter().map(|w| 1.0 / w).collect();
-    // B = R + lambda Q' W^-1 Q as three bands: diagonal, first and second off-diagonal.
-    let mut d0 = vec![0.0; m];
-    let mut d1 = vec![0.0; m];
-    let mut d2 = vec![0.0; m];
-    for j in 0..m {
-        let qj = q(j);
-        d0[j] = (h[j] + h[j + 1]) / 3.0
-            + lambda
-                * (qj[0] * qj[0] * inverse_weight[j]
-                    + qj[1] * qj[1] * inverse_weight[j + 1]
-                    + qj[2] * qj[2] * inverse_weight[j + 2]);
-        if j + 1 < m {
-            let qn = q(j + 1);
-            d1[j] = h[j + 1] / 6.0
-                + lambda * (qj[1] * qn[0] * inverse_weight[j + 1] + qj[2] * qn[1] * inverse_weight[j + 2]);
-        }
-        if j + 2 < m {
-            let qn = q(j + 2);
-            d2[j] = lambda * qj[2] * qn[0] * inverse_weight[j + 2];
-        }
-    }
-    // L D L' with L unit lower triangular of bandwidth 2: l1[j] = L[j+1][j], l2[j] = L[j+2][j].
-    let mut dd = vec![0.0; m];
-    let mut inverse_d = vec![0.0; m];
-    let mut l1 = vec![0.0; m];
-    let mut l2 = vec![0.0; m];
-    for j in 0..m {
-        let mut dj = d0[j];
-        if j >= 1 {
-            dj -= l1[j - 1] * l1[j - 1] * dd[j - 1];
-        }
-        if j >= 2 {
-            dj -= l2[j - 2] * l2[j - 2] * dd[j - 2];
-        }
-        if !(dj > 0.0 && dj.is_finite()) {
-            return Err(SmoothingError::NotPositiveDefinite);
-        }
-        dd[j] = dj;
-        let inverse = 1.0 / dj;
-        inverse_d[j] = inverse;
-        if j + 1 < m {
-            let mut b = d1[j];
-            if j >= 1 {
-                b -= l2[j - 1] * l1[j - 1] * dd[j - 1];
-            }
-            l1[j] = b * inverse;
-        }
-        if j + 2 < m {
-            l2[j] = d2[j] * inverse;
-        }
-    }
-    // gamma = B^-1 Q' y.
-    let mut gamma: Vec<f64> = (0..m)
-        .map(|j| {
-            let qj = q(j);
-            qj[0] * y[j] + qj[1] * y[j + 1] + qj[2] * y[j + 2]
-        })
-        .collect();
-    for j in 0..m {
-        if j >= 1 {
-            gamma[j] -= l1[j - 1] * gamma[j - 1];
-        }
-        if j >= 2 {
-            gamma[j] -= l2[j - 2] * gamma[j - 2];
-        }
-    }
-    for (g, d) in gamma.iter_mut().zip(&inverse_d) {
-        *g *= d;
-    }
-    for j in (0..m).rev() {
-        if j + 1 < m {
-            gamma[j] -= l1[j] * gamma[j + 1];
-        }
-        if j + 2 < m {
-            gamma[j] -= l2[j] * gamma[j + 2];
-        }
-    }
-    // Values g = y - lambda W^-1 Q gamma.
-    let mut values = y.to_vec();
-    for j in 0..m {
-        let qj = q(j);
-        for (r, qv) in qj.iter().enumerate() {
-            values[j + r] -= lambda * qv * gamma[j] * inverse_weight[j + r];
-        }
-    }
+    let (inverse_d, l1, l2) = (&factor.inverse_d, &factor.l1, &factor.l2);
+    let values = system.values(y, lambda, &gamma);
     // Central band of S = B^-1: s0[j] = S[j][j], s1[j] = S[j][j+1], s2[j] = S[j][j+2].
     let mut s0 = vec![0.0; m];
     let mut s1 = vec![0.0; m];
@@ -332,12 +240,9 @@ pub fn fit(x: &[f64], y: &[f64], weight: &[f64], lambda: f64) -> Result<Smoothin
 /// `R + lambda Q' W^-1 Q` is made once, and each vector then costs two triangular
 /// solves (no hat diagonal, no spline object).
 pub struct Smoother {
-    columns: Vec<[f64; 3]>,
-    inverse_weight: Vec<f64>,
+    system: System,
+    factor: Factor,
     lambda: f64,
-    inverse_d: Vec<f64>,
-    l1: Vec<f64>,
-    l2: Vec<f64>,
 }
 
 impl Smoother {
@@ -348,13 +253,108 @@ impl Smoother {
     /// positive definite.
     pub fn new(x: &[f64], weight: &[f64], lambda: f64) -> Result<Self, SmoothingError> {
         check(x, &vec![0.0; x.len()], weight)?;
+        let system = System::new(x, weight);
+        let factor = Factor::new(&system, lambda)?;
+        Ok(Self { system, factor, lambda })
+    }
+
+    /// Fitted values `H y` at the knots (`y` one value per knot).
+    pub fn smooth(&self, y: &[f64]) -> Vec<f64> {
+        let gamma = self.factor.solve(self.system.q_transpose_times(y));
+        self.system.values(y, self.lambda, &gamma)
+    }
+}
+
+/// What every smoothing of data at one set of knots and weights shares, whatever
+/// `lambda` and data: `Q` by columns, `W^-1`, and the bands of `R` and of
+/// `Q' W^-1 Q` (so that `B = R + lambda Q' W^-1 Q` is two additions a band entry).
+struct System {
+    /// Second-difference coefficients of column `j` of `Q` (rows `j .. j+2`).
+    columns: Vec<[f64; 3]>,
+    /// `1 / omega_i`.
+    inverse_weight: Vec<f64>,
+    /// Main and first off-diagonal of `R`.
+    gram: [Vec<f64>; 2],
+    /// Main, first and second off-diagonals of `Q' W^-1 Q`.
+    penalty: [Vec<f64>; 3],
+}
+
+impl System {
+    /// The system of knots `x` (at least three, increasing) and weights `weight`,
+    /// checked by the caller.
+    fn new(x: &[f64], weight: &[f64]) -> Self {
+        let m = x.len() - 2;
+        let h: Vec<f64> = x.windows(2).map(|p| p[1] - p[0]).collect();
+        // Column j of Q (interior knot j + 1) has entries at rows j, j + 1, j + 2; taken
+        // once, as are the inverse weights (divisions are most of a fit's cost).
+        let columns: Vec<[f64; 3]> = (0..m)
+            .map(|j| {
+                let (a, b) = (1.0 / h[j], 1.0 / h[j + 1]);
+                [a, -a - b, b]
+            })
+            .collect();
+        let inverse_weight: Vec<f64> = weight.iter().map(|w| 1.0 / w).collect();
+        let iw = &inverse_weight;
+        let gram = [
+            (0..m).map(|j| (h[j] + h[j + 1]) / 3.0).collect(),
+            (0..m).map(|j| if j + 1 < m { h[j + 1] / 6.0 } else { 0.0 }).collect(),
+        ];
+        let penalty = [
+            (0..m)
+                .map(|j| {
+                    let q = columns[j];
+                    q[0] * q[0] * iw[j] + q[1] * q[1] * iw[j + 1] + q[2] * q[2] * iw[j + 2]
+                })
+                .collect(),
+            (0..m)
+                .map(|j| {
+                    if j + 1 < m {
+                        let (q, r) = (columns[j], columns[j + 1]);
+                        q[1] * r[0] * iw[j + 1] + q[2] * r[1] * iw[j + 2]
+                    } else {
+                        0.0
+                    }
+                })
+                .collect(),
+            (0..m).map(|j| if j + 2 < m { columns[j][2] * columns[j + 2][0] * iw[j + 2] } else { 0.0 }).collect(),
+        ];
+        Self { columns, inverse_weight, gram, penalty }
+    }
+
+    /// `Q' y`.
+    fn q_transpose_times(&self, y: &[f64]) -> Vec<f64> {
+        self.columns.iter().enumerate().map(|(j, q)| q[0] * y[j] + q[1] * y[j + 1] + q[2] * y[j + 2]).collect()
+    }
+
+    /// Fitted values `g = y - lambda W^-1 Q gamma` from the data and `gamma = B^-1 Q' y`.
+    fn values(&self, y: &[f64], lambda: f64, gamma: &[f64]) -> Vec<f64> {
+        let mut values = y.to_vec();
+        for (j, q) in self.columns.iter().enumerate() {
+            for (r, qv) in q.iter().enumerate() {
+                values[j + r] -= lambda * qv * gamma[j] * self.inverse_weight[j + r];
+            }
+        }
+        values
+    }
+}
+
+/// `B = L D L'` for one `lambda`, `L` unit lower triangular of bandwidth 2:
+/// `l1[j] = L[j+1][j]`, `l2[j] = L[j+2][j]` (zero past the last rows).
+struct Factor {
+    inverse_d: Vec<f64>,
+    l1: Vec<f64>,
+    l2: Vec<f64>,
+}
+
+impl Factor {
+    /// Factorises `R + lambda Q' W^-1 Q` of `system`.
+    fn new(system: &System, lambda: f64) -> Result<Self, SmoothingError> {
         if !(lambda.is_finite() && lambda >= 0.0) {
             return Err(SmoothingError::NotPositiveDefinite);
         }
-        let mut scorer = CrossValidation::new(x, &vec![0.0; x.len()], weight)?;
-        let m = scorer.qty.len();
-        let [r0, r1] = &scorer.gram;
-        let [p0, p1, p2] = &scorer.penalty;
+        let m = system.columns.len();
+        let [r0, r1] = &system.gram;
+        let [p0, p1, p2] = &system.penalty;
         let (mut dd, mut inverse_d, mut l1, mut l2) = (vec![0.0; m], vec![0.0; m], vec![0.0; m], vec![0.0; m]);
         for j in 0..m {
             let mut dj = r0[j] + lambda * p0[j];
@@ -380,46 +380,32 @@ impl Smoother {
                 l2[j] = lambda * p2[j] * inverse_d[j];
             }
         }
-        let columns = std::mem::take(&mut scorer.columns);
-        let inverse_weight = std::mem::take(&mut scorer.inverse_weight);
-        Ok(Self { columns, inverse_weight, lambda, inverse_d, l1, l2 })
+        Ok(Self { inverse_d, l1, l2 })
     }
 
-    /// Fitted values `H y` at the knots (`y` one value per knot).
-    pub fn smooth(&self, y: &[f64]) -> Vec<f64> {
-        let m = self.columns.len();
-        let mut gamma: Vec<f64> = (0..m)
-            .map(|j| {
-                let q = self.columns[j];
-                q[0] * y[j] + q[1] * y[j + 1] + q[2] * y[j + 2]
-            })
-            .collect();
+    /// `B^-1 rhs`.
+    fn solve(&self, mut rhs: Vec<f64>) -> Vec<f64> {
+        let m = rhs.len();
         for j in 0..m {
             if j >= 1 {
-                gamma[j] -= self.l1[j - 1] * gamma[j - 1];
+                rhs[j] -= self.l1[j - 1] * rhs[j - 1];
             }
             if j >= 2 {
-                gamma[j] -= self.l2[j - 2] * gamma[j - 2];
+                rhs[j] -= self.l2[j - 2] * rhs[j - 2];
             }
         }
-        for (g, d) in gamma.iter_mut().zip(&self.inverse_d) {
+        for (g, d) in rhs.iter_mut().zip(&self.inverse_d) {
             *g *= d;
         }
         for j in (0..m).rev() {
             if j + 1 < m {
-                gamma[j] -= self.l1[j] * gamma[j + 1];
+                rhs[j] -= self.l1[j] * rhs[j + 1];
             }
             if j + 2 < m {
-                gamma[j] -= self.l2[j] * gamma[j + 2];
+                rhs[j] -= self.l2[j] * rhs[j + 2];
             }
         }
-        let mut values = y.to_vec();
-        for (j, q) in self.columns.iter().enumerate() {
-            for (r, qv) in q.iter().enumerate() {
-                values[j + r] -= self.lambda * qv * gamma[j] * self.inverse_weight[j + r];
-            }
-        }
-        values
+        rhs
     }
 }
 
@@ -495,16 +481,10 @@ pub fn fit_by_cross_validation(x: &[f64], y: &[f64], weight: &[f64]) -> Result<S
 /// `n - trace(H) = lambda trace(B^-1 Q' W^-1 Q)`, a sum over the three central bands
 /// (computed directly, without the cancellation of `n - sum H_ii`).
 pub struct CrossValidation {
-    /// Second-difference coefficients of column `j` of `Q` (rows `j .. j+2`).
-    columns: Vec<[f64; 3]>,
-    /// Main and first off-diagonal of `R`.
-    gram: [Vec<f64>; 2],
-    /// Main, first and second off-diagonals of `Q' W^-1 Q`.
-    penalty: [Vec<f64>; 3],
+    /// The knots' and weights' bands.
+    system: System,
     /// `Q' y`.
     qty: Vec<f64>,
-    /// `1 / omega_i`.
-    inverse_weight: Vec<f64>,
     /// Scratch: `D`, `1/D`, the two bands of `L`, `gamma`, the inverse's three bands.
     scratch: [Vec<[f64; LANES]>; 8],
 }
@@ -520,48 +500,10 @@ impl CrossValidation {
     /// increasing, or non-finite values or weights.
     pub fn new(x: &[f64], y: &[f64], weight: &[f64]) -> Result<Self, SmoothingError> {
         check(x, y, weight)?;
-        let n = x.len();
-        let m = n - 2;
-        let h: Vec<f64> = x.windows(2).map(|p| p[1] - p[0]).collect();
-        let columns: Vec<[f64; 3]> = (0..m)
-            .map(|j| {
-                let (a, b) = (1.0 / h[j], 1.0 / h[j + 1]);
-                [a, -a - b, b]
-            })
-            .collect();
-        let inverse_weight: Vec<f64> = weight.iter().map(|w| 1.0 / w).collect();
-        let iw = &inverse_weight;
-        let gram = [
-            (0..m).map(|j| (h[j] + h[j + 1]) / 3.0).collect(),
-            (0..m).map(|j| if j + 1 < m { h[j + 1] / 6.0 } else { 0.0 }).collect(),
-        ];
-        let penalty = [
-            (0..m)
-                .map(|j| {
-                    let q = columns[j];
-                    q[0] * q[0] * iw[j] + q[1] * q[1] * iw[j + 1] + q[2] * q[2] * iw[j + 2]
-                })
-                .collect(),
-            (0..m)
-                .map(|j| {
-                    if j + 1 < m {
-                        let (q, r) = (columns[j], columns[j + 1]);
-                        q[1] * r[0] * iw[j + 1] + q[2] * r[1] * iw[j + 2]
-                    } else {
-                        0.0
-                    }
-                })
-                .collect(),
-            (0..m).map(|j| if j + 2 < m { columns[j][2] * columns[j + 2][0] * iw[j + 2] } else { 0.0 }).collect(),
-        ];
-        let qty = (0..m)
-            .map(|j| {
-                let q = columns[j];
-                q[0] * y[j] + q[1] * y[j + 1] + q[2] * y[j + 2]
-            })
-            .collect();
-        let scratch = std::array::from_fn(|_| vec![[0.0; LANES]; m + 2 * PAD]);
-        Ok(Self { columns, gram, penalty, qty, inverse_weight, scratch })
+        let system = System::new(x, weight);
+        let qty = system.q_transpose_times(y);
+        let scratch = std::array::from_fn(|_| vec![[0.0; LANES]; qty.len() + 2 * PAD]);
+        Ok(Self { system, qty, scratch })
     }
 
     /// The generalised cross-validation score `n RSS / (n - trace H)^2` at `lambda`
@@ -589,8 +531,8 @@ impl CrossValidation {
         // Every scratch band holds row j at index j + PAD, with PAD zero rows on either
         // side, so that the recurrences need no tests at the ends.
         let [dd, inverse_d, l1, l2, gamma, s0, s1, s2] = &mut self.scratch;
-        let [r0, r1] = &self.gram;
-        let [p0, p1, p2] = &self.penalty;
+        let [r0, r1] = &self.system.gram;
+        let [p0, p1, p2] = &self.system.penalty;
         let zero = [0.0; LANES];
         for j in 0..m {
             let at = j + PAD;
@@ -618,10 +560,10 @@ impl CrossValidation {
         }
         // (Q gamma)_i over the rows i = 0 .. m+1: column j of Q touches rows j .. j+2.
         let mut rss_over_lambda_sq = zero;
-        for (i, iw) in self.inverse_weight.iter().enumerate() {
+        for (i, iw) in self.system.inverse_weight.iter().enumerate() {
             let mut q_gamma = zero;
             for j in i.saturating_sub(2)..=i.min(m - 1) {
-                let (c, g) = (self.columns[j][i - j], gamma[j + PAD]);
+                let (c, g) = (self.system.columns[j][i - j], gamma[j + PAD]);
                 q_gamma = lanes(|l| q_gamma[l] + c * g[l]);
             }
             rss_over_lambda_sq = lanes(|l| rss_over_lambda_sq[l] + q_gamma[l] * q_gamma[l] * iw);
