@@ -386,7 +386,7 @@ pub fn levels_beyond<S: SmileShape>(curves: &[S], edges: (f64, f64), tau: f64, r
 }
 
 /// Most curves [`levels_beyond`] takes at once.
-pub const MAX_BEYOND_CURVES: usize = 3;
+pub const MAX_BEYOND_CURVES: usize = 4;
 
 #[cfg(test)]
 mod tests {

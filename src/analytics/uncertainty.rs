@@ -19,7 +19,9 @@
 //!
 //! **Wings.** Beyond the outermost kept quotes the level rests on a wing rule. The
 //! wing part is half the spread of the level over reasonable rules (the fitted wing,
-//! the wing bending to the SVI base's slope, and the straight line of the edge slope).
+//! the wing bending to the SVI base's slope, the straight line of the edge slope and,
+//! where the wings follow SVI, the wing matching the curve's own edge slope and
+//! curvature).
 //!
 //! The two parts are independent and add in quadrature. Both are first-order
 //! estimates: the noise estimate itself is uncertain on few quotes, the curve's error
@@ -342,8 +344,9 @@ pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
     let wings = match curve {
         SmileCurve::SviSpline(spline) => {
             let edges = (spline.edges()[0], spline.edges()[1]);
-            let [to_svi, straight] = spline.alternative_wings();
-            let curves = [curve.clone(), SmileCurve::SviSpline(to_svi), SmileCurve::SviSpline(straight)];
+            let curves: Vec<SmileCurve> = std::iter::once(curve.clone())
+                .chain(spline.alternative_wings().into_iter().map(SmileCurve::SviSpline))
+                .collect();
             wing_spread(&levels_beyond(&curves, edges, tau, WING_LEVEL_TOL))
         }
         _ => [0.0; 3],

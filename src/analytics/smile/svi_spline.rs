@@ -115,6 +115,10 @@ pub struct SviSpline {
     /// True when the wings take their slope and curvature from the SVI base (noisy
     /// quotes): they then move with SVI's parameters, not only with the edge value.
     pub wings_from_svi: bool,
+    /// When the wings follow SVI: the wings that the curve's own edge slope and
+    /// curvature would give (the clean-quote rule), one more reasonable rule for the
+    /// wing part of the standard errors.
+    edge_matched_wings: Option<Box<[SqrtWing; 2]>>,
     correction: NaturalCubic,
     left: SqrtWing,
     right: SqrtWing,
@@ -153,8 +157,13 @@ impl SviSpline {
 
     /// The same curve with other reasonable wings, for the wing part of the levels'
     /// standard errors: both wings bending from their edge value and slope to the SVI
-    /// base's asymptotic slopes, and both the straight lines of their edge slopes.
-    pub fn alternative_wings(&self) -> [SviSpline; 2] {
+    /// base's asymptotic slopes, both the straight lines of their edge slopes, and,
+    /// when the wings follow SVI (noisy quotes), the wings that the curve's own edge
+    /// slope and curvature give (the clean-quote rule). On the noisy seed sets the
+    /// leverage swap's error was mostly the wings' (the fitted smile inside with the
+    /// true wings beyond missed by a tenth as much), and the SVI-following rules all
+    /// share SVI's edge slope: this rule adds the slope the quotes themselves show.
+    pub fn alternative_wings(&self) -> Vec<SviSpline> {
         let (svi_left, svi_right) = self.svi.wing_slopes();
         let outward_slope = |wing: &SqrtWing| wing.direction * wing.point(wing.edge).dw;
         let rebuild = |wing: &SqrtWing, beta: f64| {
@@ -167,7 +176,11 @@ impl SviSpline {
             right: rebuild(&self.right, outward_slope(&self.right)),
             ..self.clone()
         };
-        [to_svi, straight]
+        let mut out = vec![to_svi, straight];
+        if let Some([left, right]) = self.edge_matched_wings.as_deref().copied() {
+            out.push(SviSpline { left, right, edge_matched_wings: None, ..self.clone() });
+        }
+        out
     }
 
     /// Where the wings begin: the outermost kept quotes.
@@ -192,16 +205,16 @@ impl SviSpline {
             2.0 * ((y2 - y1) / (x2 - x1) - (y1 - y0) / (x1 - x0)) / (x2 - x0)
         };
         let (lo, hi) = (knots[0], knots[n - 1]);
-        let (p_lo, p_hi) = (inside(lo), inside(hi));
-        let (c_lo, c_hi) = if n >= 3 { (divided(0), divided(n - 3)) } else { (p_lo.d2w, p_hi.d2w) };
+        let (e_lo, e_hi) = (inside(lo), inside(hi));
+        let (d_lo, d_hi) = if n >= 3 { (divided(0), divided(n - 3)) } else { (e_lo.d2w, e_hi.d2w) };
         // On noisy quotes the spline's edge follows the last quotes' noise: the wings
         // then take slope and curvature from the SVI base (which all quotes set) and
         // only the value from the curve.
         let (p_lo, p_hi, c_lo, c_hi) = if noisy {
             let (s_lo, s_hi) = (svi.point(lo), svi.point(hi));
-            (SmilePoint { dw: s_lo.dw, ..p_lo }, SmilePoint { dw: s_hi.dw, ..p_hi }, s_lo.d2w, s_hi.d2w)
+            (SmilePoint { dw: s_lo.dw, ..e_lo }, SmilePoint { dw: s_hi.dw, ..e_hi }, s_lo.d2w, s_hi.d2w)
         } else {
-            (p_lo, p_hi, c_lo, c_hi)
+            (e_lo, e_hi, d_lo, d_hi)
         };
         let (svi_left, svi_right) = svi.wing_slopes();
         // A wing continuing noisy curvature can bend to a slope far beyond anything the
@@ -227,10 +240,17 @@ impl SviSpline {
             };
         let left = wing(lo, -1.0, p_lo, c_lo, asymptotes[0], svi_left);
         let right = wing(hi, 1.0, p_hi, c_hi, asymptotes[1], svi_right);
+        let edge_matched_wings = noisy.then(|| {
+            Box::new([
+                wing(lo, -1.0, e_lo, d_lo, asymptotes[0], svi_left),
+                wing(hi, 1.0, e_hi, d_hi, asymptotes[1], svi_right),
+            ])
+        });
         Self {
             svi,
             replication_tolerance: SPLINE_REPLICATION_REL_TOL,
             wings_from_svi: noisy,
+            edge_matched_wings,
             correction,
             left,
             right,
