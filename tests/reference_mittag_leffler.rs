@@ -118,3 +118,45 @@ fn derivative_matches_central_differences() {
         );
     }
 }
+
+#[test]
+fn shared_contour_matches_mpmath_on_the_negative_axis() {
+    // Every fixture point with z < 0 and a in [0.5, 1] (mpmath values): the shared-node
+    // contour of the leverage model, where its own rounding estimate accepts it (at most
+    // 1e-12, the model's acceptance), within the same 1e-12 target. dE/dz from the
+    // identity a z E'_{a,b}(z) = E_{a,b-1}(z) - (b - 1) E_{a,b}(z) (exact for all b),
+    // wherever the fixture holds both E_{a,b} and E_{a,b-1} at the same z: within
+    // 1e-11 relative of the derivative's own scale (E_{a,b-1} + (b-1) E_{a,b}) / (a|z|),
+    // since the identity's difference loses what the two terms cancel.
+    use logstrip::analytics::special::mittag_leffler_contour::NegativeAxisContour;
+    let (_, values) = load_fixture();
+    let (mut checked, mut derivatives) = (0, 0);
+    let mut failures = Vec::new();
+    for r in values.iter().filter(|r| r.z < 0.0 && (0.5..=1.0).contains(&r.alpha)) {
+        let Some(contour) = NegativeAxisContour::new(r.alpha, r.beta) else { continue };
+        let Some(got) = contour.eval(r.z) else { continue };
+        if got.rel_err_estimate > 1e-12 {
+            continue;
+        }
+        checked += 1;
+        if rel_err(got.value, r.value) > REL_TOL {
+            failures.push(format!("E a={} b={} z={}: {:e} vs {:e}", r.alpha, r.beta, r.z, got.value, r.value));
+        }
+        let lower = values.iter().find(|l| {
+            l.alpha.to_bits() == r.alpha.to_bits()
+                && l.z.to_bits() == r.z.to_bits()
+                && (l.beta - (r.beta - 1.0)).abs() < 1e-15
+        });
+        if let Some(lower) = lower {
+            derivatives += 1;
+            let want = (lower.value - (r.beta - 1.0) * r.value) / (r.alpha * r.z);
+            let scale = (lower.value.abs() + (r.beta - 1.0).abs() * r.value.abs()) / (r.alpha * r.z.abs());
+            if (got.d_z - want).abs() > 1e-11 * scale {
+                failures.push(format!("dE/dz a={} b={} z={}: {:e} vs {:e}", r.alpha, r.beta, r.z, got.d_z, want));
+            }
+        }
+    }
+    println!("shared contour: {checked} values and {derivatives} derivatives checked against mpmath");
+    assert!(checked >= 40 && derivatives >= 20, "too few points checked: {checked} values, {derivatives} derivatives");
+    assert!(failures.is_empty(), "{} failures:\n{}", failures.len(), failures.join("\n"));
+}

@@ -101,14 +101,14 @@ const ASYMPTOTIC_MAX_TERMS: usize = 80;
 /// Target accuracy of the contour integral, relative to the size of its integrand; the value
 /// used by Garrappa (2015). It cannot be much smaller: the contour must then pass closer to
 /// the origin than `ln(target / 2^-52)` allows.
-const GARRAPPA_EPS: f64 = 1e-15;
+pub(super) const GARRAPPA_EPS: f64 = 1e-15;
 
 /// `ln(2^-52)`, the machine epsilon's logarithm used in Garrappa's parameter choice.
 const LN_MACHINE_EPS: f64 = -52.0 * std::f64::consts::LN_2;
 
 /// Above this many trapezoid nodes the contour target is relaxed tenfold (Garrappa 2015 uses
 /// 200; real arguments never come near it).
-const GARRAPPA_MAX_NODES: f64 = 400.0;
+pub(super) const GARRAPPA_MAX_NODES: f64 = 400.0;
 
 /// The contour result is used when its estimated relative error (integrand size times
 /// `GARRAPPA_EPS`, divided by `|E|`) is below this; otherwise the branch-cut integral is used.
@@ -854,10 +854,10 @@ impl Contour {
 
 /// Parameters `(mu, h, N)` of the parabola `s(u) = mu (1 + i u)^2`, `u = h k`, `|k| <= N`.
 #[derive(Debug, Clone, Copy)]
-struct ContourParams {
-    mu: f64,
-    h: f64,
-    n: f64,
+pub(super) struct ContourParams {
+    pub(super) mu: f64,
+    pub(super) h: f64,
+    pub(super) n: f64,
 }
 
 /// Parameters in a region bounded on the right by the singularity with `phi = phi_j1`
@@ -969,6 +969,48 @@ fn optimal_param_ru(phi_j: f64, p_j: f64, ln_eps: f64) -> Option<ContourParams> 
 
 /// `E_{a,b}(z)` for real `z != 0` by the optimal parabolic contour (t = 1).
 fn garrappa(a: f64, b: f64, z: f64) -> Contour {
+    let Some((params, add_residue)) = contour_choice(a, b, z) else {
+        return Contour { value: f64::NAN, scale: f64::INFINITY };
+    };
+    let ContourParams { mu, h, n } = params;
+    let n = n.min(4.0 * GARRAPPA_MAX_NODES) as usize;
+    let s_star = if z > 0.0 { Some(z.powf(1.0 / a)) } else { None };
+    let zc = Complex64::new(z, 0.0);
+    let amb = a - b;
+    // integrand at u: e^s s^{a-b} / (s^a - z) * s'(u), s = mu (1 + iu)^2, s' = 2 i mu (1 + iu)
+    let term = |u: f64| -> Complex64 {
+        let one_iu = Complex64::new(1.0, u);
+        let s = one_iu * one_iu * mu;
+        let ds = Complex64::new(0.0, 2.0 * mu) * one_iu;
+        let ln_s = s.ln();
+        let s_a = (ln_s * a).exp();
+        let s_amb = (ln_s * amb).exp();
+        s.exp() * s_amb / (s_a - zc) * ds
+    };
+    // By symmetry T(-u) = -conj(T(u)), so the sum is i (Im T(0) + 2 sum_{k>=1} Im T(k h)).
+    let t0 = term(0.0);
+    let mut sum = t0.im;
+    let mut abs_sum = t0.norm();
+    for k in 1..=n {
+        let t = term(h * k as f64);
+        sum += 2.0 * t.im;
+        abs_sum += 2.0 * t.norm();
+    }
+    let mut value = h * sum / (2.0 * PI);
+    let scale = h * abs_sum / (2.0 * PI);
+    if add_residue {
+        if let Some(s) = s_star {
+            // residue of e^s s^{a-b}/(s^a - z) at s*: s*^{1-b} e^{s*} / a
+            value += s.powf(1.0 - b) * s.exp() / a;
+        }
+    }
+    Contour { value, scale }
+}
+
+/// The parabola `(mu, h, N)` for `E_{a,b}(z)` and whether the pole's residue is added.
+/// For `z < 0` it depends on `(a, b)` only, which [`super::mittag_leffler_contour`]
+/// uses to share one set of nodes among many `z`.
+pub(super) fn contour_choice(a: f64, b: f64, z: f64) -> Option<(ContourParams, bool)> {
     // Singularities of s^{a-b}/(s^a - z) that matter: the branch point at 0 (phi = 0) and,
     // for z > 0, the pole s* = z^{1/a} on the positive axis (for 0 < a <= 1 it is the only
     // pole on the principal sheet; for z < 0 there is none, or for a = 1 one on the negative
@@ -1009,41 +1051,7 @@ fn garrappa(a: f64, b: f64, z: f64) -> Contour {
             }
         }
     }
-    let Some((params, add_residue)) = chosen else {
-        return Contour { value: f64::NAN, scale: f64::INFINITY };
-    };
-    let ContourParams { mu, h, n } = params;
-    let n = n.min(4.0 * GARRAPPA_MAX_NODES) as usize;
-    let zc = Complex64::new(z, 0.0);
-    let amb = a - b;
-    // integrand at u: e^s s^{a-b} / (s^a - z) * s'(u), s = mu (1 + iu)^2, s' = 2 i mu (1 + iu)
-    let term = |u: f64| -> Complex64 {
-        let one_iu = Complex64::new(1.0, u);
-        let s = one_iu * one_iu * mu;
-        let ds = Complex64::new(0.0, 2.0 * mu) * one_iu;
-        let ln_s = s.ln();
-        let s_a = (ln_s * a).exp();
-        let s_amb = (ln_s * amb).exp();
-        s.exp() * s_amb / (s_a - zc) * ds
-    };
-    // By symmetry T(-u) = -conj(T(u)), so the sum is i (Im T(0) + 2 sum_{k>=1} Im T(k h)).
-    let t0 = term(0.0);
-    let mut sum = t0.im;
-    let mut abs_sum = t0.norm();
-    for k in 1..=n {
-        let t = term(h * k as f64);
-        sum += 2.0 * t.im;
-        abs_sum += 2.0 * t.norm();
-    }
-    let mut value = h * sum / (2.0 * PI);
-    let scale = h * abs_sum / (2.0 * PI);
-    if add_residue {
-        if let Some(s) = s_star {
-            // residue of e^s s^{a-b}/(s^a - z) at s*: s*^{1-b} e^{s*} / a
-            value += s.powf(1.0 - b) * s.exp() / a;
-        }
-    }
-    Contour { value, scale }
+    chosen
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -11,3 +11,4 @@ pub mod exp;
 #[rustfmt::skip]
 mod exp_table;
 pub mod mittag_leffler;
+pub mod mittag_leffler_contour;
