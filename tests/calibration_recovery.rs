@@ -34,7 +34,14 @@ fn synthetic(params: LeverageParams) -> LeverageTarget {
 fn assert_recovers(truth: LeverageParams, spec: FitSpec) {
     let target = synthetic(truth);
     let fit = fit_leverage(&target, &spec);
-    assert_eq!(fit.status, FitStatus::Converged, "{fit:?}");
+    // A parameter that ends on its bound is reported as such, never as plain
+    // convergence.
+    let expected = if fit.active_bounds.iter().any(|b| *b != ParamName::Hurst) {
+        FitStatus::AtBound
+    } else {
+        FitStatus::Converged
+    };
+    assert_eq!(fit.status, expected, "{fit:?}");
     let pairs = [
         ("hurst", fit.params.hurst, truth.hurst),
         ("rho_nu", fit.params.rho_nu, truth.rho_nu),
@@ -69,6 +76,8 @@ fn recovers_mean_reversion_on_its_bound() {
     assert_recovers(truth, FitSpec { model: Some(ModelKind::RoughHeston), ..FitSpec::default() });
     let fit = fit_leverage(&synthetic(truth), &FitSpec::default());
     assert_eq!(fit.active_bounds, vec![ParamName::MeanReversion], "{fit:?}");
+    assert_eq!(fit.status, FitStatus::AtBound, "{fit:?}");
+    assert!(fit.message.as_deref().is_some_and(|m| m.contains("mean_reversion")), "{fit:?}");
 }
 
 #[test]
@@ -164,4 +173,24 @@ fn convexity_matches_the_heston_closed_form() {
         let vol_swap = theta.sqrt() - var_rv / (8.0 * theta.powf(1.5));
         assert!((c.volatility_swap - vol_swap).abs() < 1e-12, "tau {t}: {} vs {vol_swap}", c.volatility_swap);
     }
+}
+
+/// With `nu` given, `rho = rho_nu / nu` must stay a correlation: data asking for
+/// `|rho_nu| > nu` end with `rho_nu` on the bound `-nu`, reported as such (identity:
+/// the bound is `[-nu, nu]` by the definition of `rho`).
+#[test]
+fn a_given_nu_keeps_rho_a_correlation() {
+    let truth = LeverageParams { hurst: 0.15, rho_nu: -0.6, mean_reversion: 1.0 };
+    let spec = FitSpec { model: Some(ModelKind::RoughHeston), nu: Some(0.4), ..FitSpec::default() };
+    let fit = fit_leverage(&synthetic(truth), &spec);
+    assert_eq!(fit.status, FitStatus::AtBound, "{fit:?}");
+    assert!(fit.active_bounds.contains(&ParamName::RhoNu), "{fit:?}");
+    assert!((fit.params.rho_nu + 0.4).abs() < 1e-12, "{fit:?}");
+    let rho = fit.rho.expect("rho with nu");
+    assert!((rho + 1.0).abs() < 1e-12 && fit.message.as_deref().is_some_and(|m| m.contains("rho")), "{fit:?}");
+    // A fixed rho_nu beyond nu cannot be met: a failed fit naming the correlation.
+    let fixed = FitSpec { rho_nu: Some(-0.6), ..spec };
+    let refused = fit_leverage(&synthetic(truth), &fixed);
+    assert_eq!(refused.status, FitStatus::Failed);
+    assert!(refused.message.as_deref().is_some_and(|m| m.contains("outside [-1, 1]")), "{refused:?}");
 }

@@ -48,7 +48,7 @@ fn analyze_demo_snapshot() {
     for field in ["hurst", "rho_nu", "mean_reversion"] {
         assert!(fit["params"][field].is_number(), "params.{field}");
     }
-    assert!(["converged", "max_iterations", "failed"].contains(&fit["status"].as_str().expect("status")));
+    assert!(["converged", "at_bound", "max_iterations", "failed"].contains(&fit["status"].as_str().expect("status")));
     assert_eq!(fit["model_leverage_swap"].as_array().expect("model LS").len(), 35);
     // The demo carries one off-market quote; it is reported, not silently dropped.
     let warned = curve.iter().any(|c| {
@@ -268,4 +268,16 @@ fn analyze_a_csv_snapshot_with_header_values_from_flags() {
     let out = logstrip(&["analyze", "--input", file], None);
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("line 1, column underlying"));
+}
+
+#[test]
+fn a_fixed_rho_nu_beyond_nu_exits_2_naming_the_field() {
+    // rho = rho_nu / nu is a correlation: |rho_nu| > nu cannot be met.
+    let text = r#"{"underlying":"KESTREL50","as_of":"2026-11-30T15:30:00Z",
+        "fit":{"model":"rough_heston","fix":{"rho_nu":-0.6},"nu":0.3},
+        "slices":[{"tau":0.5,"forward":100,"points":[{"strike":90,"vol":0.22},{"strike":100,"vol":0.2},{"strike":110,"vol":0.19}]}]}"#;
+    let out = logstrip(&["analyze", "--input", "-"], Some(text));
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.lines().any(|l| l.starts_with("fit.fix.rho_nu: ") && l.contains("outside [-1, 1]")), "{stderr}");
 }

@@ -231,9 +231,13 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
     Ok(Analysis { slices: out, fit })
 }
 
+/// Smallest leverage swap uncertainty the fit uses, as a share of the median over
+/// expiries: weights then differ by at most a factor of 25 (rule of thumb, no source).
+pub const LEVERAGE_SE_FLOOR_SHARE: f64 = 0.2;
+
 /// The swap levels the model is fitted to, from an analysis of `slices`: per expiry
-/// the variance and leverage swaps, weighted by the uncertainty the quotes' bid/ask
-/// spreads give them (no weights unless every slice has spreads). The fit of
+/// the variance and leverage swaps, weighted by their standard errors (or by the
+/// quotes' bid/ask spreads; no weights when neither is known for every slice). The fit of
 /// [`analyze`] uses it, and so do the benchmarks, so that they time that same fit.
 pub fn leverage_target(slices: &[Slice], out: &[SliceAnalysis]) -> LeverageTarget {
     LeverageTarget {
@@ -286,12 +290,21 @@ fn check_calendar(out: &mut [SliceAnalysis]) {
     }
 }
 
-/// One-standard-deviation uncertainty of each leverage swap level from the quotes'
+/// One-standard-deviation uncertainty of each leverage swap level: its standard error
+/// ([`super::uncertainty`]) when every slice has one, held to at least
+/// [`LEVERAGE_SE_FLOOR_SHARE`] of their median (a clean expiry's se can be nearly nil,
+/// and one such expiry must not carry the whole fit); otherwise from the quotes'
 /// bid/ask spreads, when every slice has some: a vol shift of the median half
 /// spread moves the variance swap by about `2 sqrt(VS) h`; the leverage swap is
-/// given the same uncertainty scaled by `sqrt(3 / n)` for `n` independent quotes.
-/// A rule of thumb (common practice, no source): it only sets relative weights.
+/// given the same uncertainty scaled by `sqrt(3 / n)` for `n` independent quotes
+/// (a rule of thumb, common practice, no source: it only sets relative weights).
 fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f64>> {
+    let se: Option<Vec<f64>> =
+        out.iter().map(|s| s.level_errors.map(|e| e.total()[2]).filter(|x| x.is_finite() && *x > 0.0)).collect();
+    if let Some(se) = se {
+        let floor = LEVERAGE_SE_FLOOR_SHARE * super::stats::median(&se)?;
+        return Some(se.iter().map(|x| x.max(floor)).collect());
+    }
     out.iter()
         .map(|s| {
             let spreads = || slices[s.input_index].quotes().iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0);

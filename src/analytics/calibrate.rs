@@ -107,13 +107,48 @@ pub struct LeverageTarget {
 /// How a fit ended.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum FitStatus {
-    /// The solver met its convergence criterion.
+    /// The solver met its convergence criterion inside the bounds (a Hurst exponent
+    /// that reached 1/2 counts as inside: that is the classical Heston model, reported
+    /// in [`FitOutcome::selected_model`]).
     Converged,
+    /// The solver met its convergence criterion with parameters on their bounds
+    /// ([`FitOutcome::active_bounds`] names them): the best fit the bounds allow, which
+    /// the data may want beyond them.
+    AtBound,
     /// The iteration cap was reached first.
     MaxIterations,
     /// No usable fit (too few expiries, or the model could not be evaluated).
     Failed,
 }
+
+/// An expiry that counts for much less than a typical one in the fit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct DownWeighted {
+    /// Expiry (years).
+    pub tau: f64,
+    /// Its weight in the loss relative to an expiry of median uncertainty that fits:
+    /// the robust loss's weight times `(median se / se)^2`, at most 1.
+    pub weight: f64,
+    /// Why.
+    pub reason: DownWeightReason,
+}
+
+/// Why an expiry counts for less.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum DownWeightReason {
+    /// Its leverage swap missed the model by more than the robust loss's cut.
+    RobustLoss,
+    /// Its leverage swap's standard error is large (weight below
+    /// [`LARGE_SE_WEIGHT`] from the standard error alone).
+    LargeStandardError,
+}
+
+/// Relative weight from the standard error below which an expiry is reported as
+/// down-weighted: a standard error above 10 times the median. Rule of thumb (no
+/// source): on the generated clean smiles the wing part alone puts the longest
+/// expiries' standard errors at 3 to 9 times the median, and a broken expiry's
+/// (a +-2.5 vol pt sawtooth) at 15 to 150 times.
+pub const LARGE_SE_WEIGHT: f64 = 0.01;
 
 /// Volatility-swap convexity at one expiry (needs `nu`).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -151,6 +186,11 @@ pub struct FitOutcome {
     pub model_leverage_swap: Vec<f64>,
     /// Parameters that ended at a bound of their range.
     pub active_bounds: Vec<ParamName>,
+    /// The model the fit ended in: [`ModelKind::Heston`] when a rough Heston fit's
+    /// Hurst exponent reached 1/2.
+    pub selected_model: ModelKind,
+    /// Expiries that count for much less than a typical one in the fit.
+    pub down_weighted: Vec<DownWeighted>,
     /// Wall time of the fit, microseconds.
     pub elapsed_us: u64,
     /// `rho = c / nu`, when `nu` was supplied.
@@ -169,9 +209,17 @@ struct Layout {
     /// Value per parameter: `None` when free.
     fixed: [Option<f64>; 3],
     free: Vec<ParamName>,
+    /// Search bounds per parameter: [`ParamName::bounds`], with `rho_nu` held to
+    /// `[-nu, nu]` when `nu` is given (so that `rho` stays a correlation).
+    limits: [(f64, f64); 3],
 }
 
 impl Layout {
+    /// Search bounds of `name`.
+    fn limit(&self, name: ParamName) -> (f64, f64) {
+        self.limits[name.index()]
+    }
+
     /// The full parameter set from the free values `x` (in the order of `free`).
     fn to_params(&self, x: &[f64]) -> LeverageParams {
         let mut all = [0.0; 3];
@@ -193,7 +241,7 @@ impl Layout {
 
     /// Lower and upper bounds of the free parameters.
     fn bounds(&self) -> (Vec<f64>, Vec<f64>) {
-        self.free.iter().map(|name| name.bounds()).unzip()
+        self.free.iter().map(|name| self.limit(*name)).unzip()
     }
 
     /// `x` clamped into the bounds.
@@ -201,7 +249,7 @@ impl Layout {
         x.iter()
             .zip(&self.free)
             .map(|(v, name)| {
-                let (lo, hi) = name.bounds();
+                let (lo, hi) = self.limit(*name);
                 v.clamp(lo, hi)
             })
             .collect()
@@ -287,7 +335,13 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         .filter(|(n, v)| v.is_some() && !(model == ModelKind::Heston && **n == ParamName::Hurst))
         .map(|(n, _)| *n)
         .collect();
-    let layout = Layout { fixed: fixed_values, free: free.clone() };
+    let nu = spec.nu.filter(|nu| nu.is_finite() && *nu > 0.0);
+    let mut limits = ParamName::ALL.map(|name| name.bounds());
+    if let Some(nu) = nu {
+        let (lo, hi) = limits[ParamName::RhoNu.index()];
+        limits[ParamName::RhoNu.index()] = (lo.max(-nu), hi.min(nu));
+    }
+    let layout = Layout { fixed: fixed_values, free: free.clone(), limits };
     let failed = |message: String, params: LeverageParams| FitOutcome {
         model,
         params,
@@ -299,6 +353,8 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         leverage_rmse: f64::NAN,
         model_leverage_swap: Vec::new(),
         active_bounds: Vec::new(),
+        selected_model: model,
+        down_weighted: Vec::new(),
         elapsed_us: started.elapsed().as_micros() as u64,
         rho: None,
         convexity: None,
@@ -318,6 +374,14 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             if !(v >= lo && v <= hi) {
                 return failed(format!("fixed {} must lie in [{lo}, {hi}], got {v}", name.as_str()), nan_params);
             }
+        }
+    }
+    if let (Some(nu), Some(c)) = (nu, spec.rho_nu) {
+        if c.abs() > nu {
+            return failed(
+                format!("fixed rho_nu {c} with nu {nu} gives a correlation {} outside [-1, 1]", c / nu),
+                nan_params,
+            );
         }
     }
     let n = target.taus.len();
@@ -388,7 +452,10 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             Some(v) => vec![v],
             None => match name {
                 ParamName::Hurst => vec![0.05, 0.15, 0.3, 0.45],
-                ParamName::RhoNu => vec![-0.3, -1.0],
+                ParamName::RhoNu => {
+                    let (lo, hi) = layout.limit(ParamName::RhoNu);
+                    vec![(-0.3f64).clamp(lo, hi), (-1.0f64).clamp(lo, hi)]
+                }
                 ParamName::MeanReversion => vec![0.1],
             },
         }
@@ -412,46 +479,41 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     };
     let x0 = layout.to_free(&start);
 
-    let mut message = None;
-    let mut iterations = 0;
-    let mut status = FitStatus::Converged;
-    let mut x_best = x0.clone();
-    let mut residual_best = None;
-    if !free.is_empty() {
-        let gn = run_levenberg_marquardt(&problem, &x0);
-        match gn {
-            Ok((x, iters, reason, residual)) => {
-                x_best = x;
-                residual_best = residual;
-                iterations = iters;
-                if reason != Some(TerminationReason::SolverConverged) {
-                    status = FitStatus::MaxIterations;
-                    message =
-                        Some(format!("Gauss-Newton stopped after {iters} iterations without meeting its tolerance"));
-                }
-            }
-            Err(e) => {
-                let nm = run_nelder_mead(&problem, &x0);
-                match nm {
-                    Ok((x, iters, reason, _)) => {
-                        x_best = layout.project(&x);
-                        iterations = iters;
-                        let how = if reason == Some(TerminationReason::SolverConverged) {
-                            "converged"
-                        } else {
-                            status = FitStatus::MaxIterations;
-                            "stopped at its iteration cap"
-                        };
-                        message = Some(format!("Levenberg-Marquardt failed ({e}); Nelder-Mead {how}"));
-                    }
-                    Err(e2) => {
-                        status = FitStatus::Failed;
-                        message = Some(format!("Levenberg-Marquardt failed ({e}); Nelder-Mead failed ({e2})"));
-                    }
-                }
-            }
+    // The fit proper, then rounds of Huber reweighting (robust loss by iteratively
+    // reweighted least squares), each started from the last point.
+    let mut run = solve(&problem, &x0);
+    let mut iterations = run.iterations;
+    let mut weights = vec![1.0; n];
+    // One standard error in residual units (residuals are in units of `rms` scaled by
+    // each expiry's uncertainty over their median).
+    let sigma_unit = match &target.uncertainty {
+        Some(u) if u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0) => {
+            super::stats::median(u).unwrap_or(0.0) / rms
         }
+        _ => 0.0,
+    };
+    for _ in 0..ROBUST_FIT_ROUNDS {
+        if run.status == FitStatus::Failed {
+            break;
+        }
+        let params = layout.to_params(&run.x);
+        let Ok(model_total) = curve.total_leverage(&params) else { break };
+        let residual: Vec<f64> =
+            model_total.iter().zip(&market_total).zip(&scale).map(|((m, t), s)| (m - t) * s).collect();
+        let next = huber_weights(&residual, sigma_unit);
+        if next.iter().zip(&weights).all(|(a, b)| (a - b).abs() < ROBUST_FIT_SETTLED) {
+            break;
+        }
+        weights = next;
+        let robust_scale: Vec<f64> = scale.iter().zip(&weights).map(|(s, w)| s * w.sqrt()).collect();
+        let robust = LeverageProblem { scale: &robust_scale, ..problem };
+        let again = solve(&robust, &run.x);
+        iterations += again.iterations;
+        run = SolveRun { residual: None, ..again };
     }
+    let SolveRun { x: x_best, status, message, residual: residual_best, .. } = run;
+    let mut status = status;
+    let mut message = message;
     let params = layout.to_params(&x_best);
     // The solver's residuals at its result give the model values without another
     // evaluation (after a final step taken on the linear model there is none cached).
@@ -467,21 +529,53 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         (model_leverage_swap.iter().zip(&target.leverage_swap).map(|(m, l)| (m - l).powi(2)).sum::<f64>() / n as f64)
             .sqrt();
     let x = [params.hurst, params.rho_nu, params.mean_reversion];
-    let active_bounds = free
-        .iter()
-        .filter(|name| {
-            let i = name.index();
-            let (lo, hi) = name.bounds();
-            let margin = ACTIVE_BOUND_FRACTION * (hi - lo);
-            x[i] <= lo + margin || x[i] >= hi - margin
+    let at = |name: ParamName| {
+        let (lo, hi) = layout.limit(name);
+        let margin = ACTIVE_BOUND_FRACTION * (hi - lo);
+        let v = x[name.index()];
+        (v <= lo + margin, v >= hi - margin)
+    };
+    let active_bounds: Vec<ParamName> = free.iter().filter(|name| at(**name) != (false, false)).cloned().collect();
+    // H = 1/2 is the classical Heston model: a model choice, not a parameter held back.
+    let heston_selected = model == ModelKind::RoughHeston && free.contains(&ParamName::Hurst) && at(ParamName::Hurst).1;
+    let held: Vec<ParamName> =
+        active_bounds.iter().filter(|name| !(heston_selected && **name == ParamName::Hurst)).cloned().collect();
+    if status == FitStatus::Converged && !held.is_empty() {
+        status = FitStatus::AtBound;
+        let names: Vec<String> = held
+            .iter()
+            .map(|name| {
+                let (lo, hi) = layout.limit(*name);
+                let bound = if at(*name).0 { lo } else { hi };
+                let why = if *name == ParamName::RhoNu && nu.is_some() { " (|rho| = 1 at this nu)" } else { "" };
+                format!("{} at {bound}{why}", name.as_str())
+            })
+            .collect();
+        message = Some(format!("converged with {} on its bound", names.join(" and ")));
+    }
+    if heston_selected {
+        let note = "the Hurst exponent reached 1/2: the classical Heston model describes these leverage swaps best";
+        message = Some(match message {
+            Some(m) => format!("{m}; {note}"),
+            None => note.to_string(),
+        });
+    }
+    let down_weighted = (0..n)
+        .filter_map(|i| {
+            let from_se = (rms / sigma[i]).powi(2).min(1.0);
+            let reason = if weights[i] < 1.0 {
+                DownWeightReason::RobustLoss
+            } else if from_se < LARGE_SE_WEIGHT {
+                DownWeightReason::LargeStandardError
+            } else {
+                return None;
+            };
+            Some(DownWeighted { tau: target.taus[i], weight: weights[i] * from_se, reason })
         })
-        .cloned()
         .collect();
-    let (rho, convexity) = match spec.nu {
-        Some(nu) if nu > 0.0 && nu.is_finite() => {
-            (Some(params.rho_nu / nu), convexity(&curve, &target.variance_swap, &params, nu))
-        }
-        _ => (None, None),
+    let (rho, convexity) = match nu {
+        Some(nu) => (Some(params.rho_nu / nu), convexity(&curve, &target.variance_swap, &params, nu)),
+        None => (None, None),
     };
     FitOutcome {
         model,
@@ -494,9 +588,87 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         leverage_rmse,
         model_leverage_swap,
         active_bounds,
+        selected_model: if heston_selected { ModelKind::Heston } else { model },
+        down_weighted,
         elapsed_us: started.elapsed().as_micros() as u64,
         rho,
         convexity,
+    }
+}
+
+/// Rounds of Huber reweighting after the first fit (two settle the weights on the
+/// generated sets with a broken expiry; the cap bounds the cost).
+const ROBUST_FIT_ROUNDS: usize = 3;
+
+/// Largest change of any expiry's weight at which the reweighting has settled.
+const ROBUST_FIT_SETTLED: f64 = 0.05;
+
+/// Huber's tuning constant: 95% efficiency at normal errors (Huber 1964, Ann. Math.
+/// Statist. 35(1), "Robust estimation of a location parameter").
+const HUBER_K: f64 = 1.345;
+
+/// Huber weights `min(1, k s / |r|)` of residuals `r`, with `s` the larger of their
+/// robust spread (1.4826 times the median absolute deviation, which is the standard
+/// deviation for normal errors) and `floor` (one standard error in residual units when
+/// the levels carry standard errors: a miss within `k` standard errors is never
+/// down-weighted, however well the rest fits).
+fn huber_weights(residual: &[f64], floor: f64) -> Vec<f64> {
+    let centre = super::stats::median(residual).unwrap_or(0.0);
+    let deviations: Vec<f64> = residual.iter().map(|r| (r - centre).abs()).collect();
+    let spread = 1.4826 * super::stats::median(&deviations).unwrap_or(0.0);
+    let cut = HUBER_K * spread.max(floor);
+    residual.iter().map(|r| if cut > 0.0 && r.abs() > cut { cut / r.abs() } else { 1.0 }).collect()
+}
+
+/// One solver run: the point, iterations, status and message, and the residuals at
+/// the point when the solver has them.
+struct SolveRun {
+    x: Vec<f64>,
+    iterations: u64,
+    status: FitStatus,
+    message: Option<String>,
+    residual: Option<Vec<f64>>,
+}
+
+/// Levenberg-Marquardt from `x0`, and Nelder-Mead if the model cannot be evaluated
+/// along the way.
+fn solve(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolveRun {
+    if problem.layout.free.is_empty() {
+        return SolveRun { x: x0.to_vec(), iterations: 0, status: FitStatus::Converged, message: None, residual: None };
+    }
+    match run_levenberg_marquardt(problem, x0) {
+        Ok((x, iterations, reason, residual)) => {
+            let converged = reason == Some(TerminationReason::SolverConverged);
+            SolveRun {
+                x,
+                iterations,
+                status: if converged { FitStatus::Converged } else { FitStatus::MaxIterations },
+                message: (!converged).then(|| {
+                    format!("Levenberg-Marquardt stopped after {iterations} iterations without meeting its tolerance")
+                }),
+                residual,
+            }
+        }
+        Err(e) => match run_nelder_mead(problem, x0) {
+            Ok((x, iterations, reason, _)) => {
+                let converged = reason == Some(TerminationReason::SolverConverged);
+                let how = if converged { "converged" } else { "stopped at its iteration cap" };
+                SolveRun {
+                    x: problem.layout.project(&x),
+                    iterations,
+                    status: if converged { FitStatus::Converged } else { FitStatus::MaxIterations },
+                    message: Some(format!("Levenberg-Marquardt failed ({e}); Nelder-Mead {how}")),
+                    residual: None,
+                }
+            }
+            Err(e2) => SolveRun {
+                x: x0.to_vec(),
+                iterations: 0,
+                status: FitStatus::Failed,
+                message: Some(format!("Levenberg-Marquardt failed ({e}); Nelder-Mead failed ({e2})")),
+                residual: None,
+            },
+        },
     }
 }
 
@@ -526,7 +698,7 @@ fn run_nelder_mead(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolverRun {
     // Start simplex: a tenth of each range away from the start, towards the interior.
     let mut simplex = vec![x0.to_vec()];
     for (i, name) in problem.layout.free.iter().enumerate() {
-        let (lo, hi) = name.bounds();
+        let (lo, hi) = problem.layout.limit(*name);
         let step = 0.1 * (hi - lo);
         let mut v = x0.to_vec();
         v[i] += if v[i] + step <= hi { step } else { -step };

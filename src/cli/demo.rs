@@ -108,11 +108,31 @@ fn compare(file: &str, analysis: &serde_json::Value, truth: &Truth) -> Option<Co
     Some(Comparison {
         label: analysis["as_of"].as_str().unwrap_or(file).to_string(),
         params: ["hurst", "rho_nu", "mean_reversion"].map(|p| fit["params"][p].as_f64()),
-        status: fit["status"].as_str().unwrap_or("none").to_string(),
+        status: fit_label(fit),
         variance_errors,
         leverage_errors,
         warnings,
     })
+}
+
+/// The fit's status as the table shows it: with the bound parameters named, and the
+/// classical Heston model named when a rough Heston fit ended at H = 1/2.
+fn fit_label(fit: &serde_json::Value) -> String {
+    let status = fit["status"].as_str().unwrap_or("none");
+    let mut label = match status {
+        "at_bound" => {
+            let names: Vec<&str> = fit["active_bounds"]
+                .as_array()
+                .map(|a| a.iter().filter_map(|v| v.as_str()).collect())
+                .unwrap_or_default();
+            format!("at bound: {}", names.join(", "))
+        }
+        other => other.replace('_', " "),
+    };
+    if fit["selected_model"] == "heston" && fit["model"] == "rough_heston" {
+        label.push_str(", Heston");
+    }
+    label
 }
 
 fn median(values: &mut [f64]) -> f64 {
@@ -152,14 +172,14 @@ fn report(out: &mut dyn Write, truth: &Truth, rows: &mut [Comparison]) -> std::i
     )?;
     writeln!(
         out,
-        "  {:<22} {:>7} {:>8} {:>9}  {:<15} {:>17} {:>11} {:>8}",
+        "  {:<22} {:>7} {:>8} {:>9}  {:<26} {:>17} {:>11} {:>8}",
         "as_of", "hurst", "rho_nu", "mean_rev", "fit", "VS error med/max", "LS err max", "warnings"
     )?;
     for r in rows.iter_mut() {
         let max_vs = maximum(&r.variance_errors);
         writeln!(
             out,
-            "  {:<22} {:>7} {:>8} {:>9}  {:<15} {:>7.2}% / {:>5.2}% {:>11.1e} {:>8}",
+            "  {:<22} {:>7} {:>8} {:>9}  {:<26} {:>7.2}% / {:>5.2}% {:>11.1e} {:>8}",
             r.label,
             cell(r.params[0]),
             cell(r.params[1]),

@@ -391,6 +391,11 @@ fn fit_spec(doc: Option<&FitDoc>, problems: &mut Problems) -> Option<FitSpec> {
     if let Some(nu) = doc.nu {
         if !(nu.is_finite() && nu > 0.0) {
             problems.push(path.field("nu"), format!("must be positive, got {nu}"));
+        } else if let Some(c) = rho_nu.filter(|c| c.abs() > nu) {
+            problems.push(
+                fix_path.field("rho_nu"),
+                format!("with nu {nu} gives a correlation rho = rho_nu / nu = {} outside [-1, 1]", c / nu),
+            );
         }
     }
     Some(FitSpec { model: Some(model), hurst, rho_nu, mean_reversion, nu: doc.nu })

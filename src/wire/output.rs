@@ -2,7 +2,7 @@
 
 use super::input::{ValidSnapshot, ValidSwaps};
 use crate::analytics::analysis::Analysis;
-use crate::analytics::calibrate::{FitOutcome, FitStatus, ModelKind};
+use crate::analytics::calibrate::{DownWeightReason, FitOutcome, FitStatus, ModelKind};
 use crate::analytics::smile::SmileCurve;
 use serde::Serialize;
 
@@ -186,7 +186,8 @@ pub struct FitResultDoc {
     pub params: ParamsDoc,
     /// Names of parameters held fixed.
     pub fixed: Vec<&'static str>,
-    /// `converged`, `max_iterations` or `failed`.
+    /// `converged`, `at_bound` (converged with parameters on their bounds, named in
+    /// `active_bounds` and `message`), `max_iterations` or `failed`.
     pub status: &'static str,
     /// Why, when not converged, or which fallback was used.
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -201,6 +202,12 @@ pub struct FitResultDoc {
     pub model_leverage_swap: Vec<f64>,
     /// Parameters that ended at a bound.
     pub active_bounds: Vec<&'static str>,
+    /// The model the fit ended in: `heston` when a rough Heston fit's Hurst exponent
+    /// reached 1/2, else `model`.
+    pub selected_model: &'static str,
+    /// Expiries that count for much less than a typical one: down-weighted by the
+    /// robust (Huber) loss, or by a large standard error; empty when none does.
+    pub down_weighted_expiries: Vec<DownWeightedDoc>,
     /// Wall time of the fit, microseconds.
     pub elapsed_us: u64,
     /// Vol-of-vol as supplied.
@@ -212,6 +219,19 @@ pub struct FitResultDoc {
     /// Volatility-swap convexity per expiry (with `nu`).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub convexity: Option<Vec<ConvexityDoc>>,
+}
+
+/// An expiry the fit down-weighted.
+#[derive(Debug, Clone, Serialize, utoipa::ToSchema)]
+pub struct DownWeightedDoc {
+    /// Expiry, years.
+    pub tau: f64,
+    /// Its weight in the fit's loss relative to an expiry of median standard error
+    /// that fits (at most 1).
+    pub weight: f64,
+    /// `robust_loss` (it missed the model by more than the robust loss's cut) or
+    /// `large_standard_error` (its standard error is above 10 times the median).
+    pub reason: &'static str,
 }
 
 /// Fitted parameters.
@@ -247,13 +267,17 @@ fn vol_of(level: f64) -> Option<f64> {
     (level >= 0.0).then(|| level.sqrt())
 }
 
+fn model_name(model: ModelKind) -> &'static str {
+    match model {
+        ModelKind::RoughHeston => "rough_heston",
+        ModelKind::Heston => "heston",
+    }
+}
+
 /// The output form of a fit.
 pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitResultDoc {
     FitResultDoc {
-        model: match fit.model {
-            ModelKind::RoughHeston => "rough_heston",
-            ModelKind::Heston => "heston",
-        },
+        model: model_name(fit.model),
         params: ParamsDoc {
             hurst: match fit.model {
                 ModelKind::RoughHeston => finite(fit.params.hurst),
@@ -265,6 +289,7 @@ pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitResultDoc {
         fixed: fit.fixed.iter().map(|p| p.as_str()).collect(),
         status: match fit.status {
             FitStatus::Converged => "converged",
+            FitStatus::AtBound => "at_bound",
             FitStatus::MaxIterations => "max_iterations",
             FitStatus::Failed => "failed",
         },
@@ -274,6 +299,19 @@ pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitResultDoc {
         leverage_rmse: finite(fit.leverage_rmse),
         model_leverage_swap: fit.model_leverage_swap.clone(),
         active_bounds: fit.active_bounds.iter().map(|p| p.as_str()).collect(),
+        selected_model: model_name(fit.selected_model),
+        down_weighted_expiries: fit
+            .down_weighted
+            .iter()
+            .map(|d| DownWeightedDoc {
+                tau: d.tau,
+                weight: d.weight,
+                reason: match d.reason {
+                    DownWeightReason::RobustLoss => "robust_loss",
+                    DownWeightReason::LargeStandardError => "large_standard_error",
+                },
+            })
+            .collect(),
         elapsed_us: fit.elapsed_us,
         nu: fit.convexity.as_ref().and(nu),
         rho: fit.rho,
