@@ -1,8 +1,9 @@
 //! Criterion benches over a set of snapshots: the invented demo day (35 expiries, 60
 //! quotes each, bid/ask) and every snapshot of the tuning smile sets
 //! (`tests/fixtures/smile_sets/tuning/`: dense, 35 x 60, sparse, from prices, noisy
-//! with and without bid/ask, stale quotes, rough Heston, flat, a broken expiry). Per
-//! snapshot: the smiles and replication alone, the rough Heston fit alone, and both.
+//! with and without bid/ask, stale quotes, rough Heston, flat, a broken expiry), plus
+//! `tests/fixtures/bench_sets/` (70 irregular expiries; a positive skew, where the
+//! leverage model's Mittag-Leffler argument is positive). Per snapshot: the smiles and replication alone, the rough Heston fit alone, and both.
 //! The README reports the slowest snapshot.
 
 use criterion::{criterion_group, criterion_main, Criterion};
@@ -22,6 +23,10 @@ fn snapshots() -> Vec<(String, PathBuf)> {
         .filter(|p| p.extension().is_some_and(|e| e == "json") && !p.to_string_lossy().ends_with(".truth.json"))
         .collect();
     sets.sort();
+    // The two extra benchmark snapshots: 70 irregular expiries, and rho nu > lambda.
+    for name in ["70_irregular_expiries", "positive_skew"] {
+        sets.push(root.join(format!("tests/fixtures/bench_sets/{name}.json")));
+    }
     for path in sets {
         let name = path.file_stem().and_then(|s| s.to_str()).unwrap_or("set").to_string();
         out.push((name, path));

@@ -76,11 +76,12 @@ enum Command {
     Serve(cli::serve::ServeArgs),
     /// Print the service's OpenAPI document.
     Openapi,
-    /// Time the analysis and the fit of a snapshot in-process.
+    /// Time the analysis and the fit of a set of snapshots in-process.
     Bench {
-        /// Snapshot JSON file.
-        #[arg(long, short)]
-        input: PathBuf,
+        /// Snapshot JSON file, or a directory whose `*.json` files (not `*.truth.json`)
+        /// are snapshots; repeat for more.
+        #[arg(long, short, required = true)]
+        input: Vec<PathBuf>,
         /// Number of runs.
         #[arg(long, default_value_t = 200)]
         runs: usize,

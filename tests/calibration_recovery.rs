@@ -194,3 +194,41 @@ fn a_given_nu_keeps_rho_a_correlation() {
     assert_eq!(refused.status, FitStatus::Failed);
     assert!(refused.message.as_deref().is_some_and(|m| m.contains("outside [-1, 1]")), "{refused:?}");
 }
+
+/// A fit that runs out of its evaluation budget stops with the best point it reached
+/// and says so, instead of running on or claiming convergence.
+#[test]
+fn an_exhausted_budget_is_reported_with_the_best_point() {
+    let truth = LeverageParams { hurst: 0.1, rho_nu: -0.45, mean_reversion: 0.8 };
+    let target = synthetic(truth);
+    let spec = FitSpec { model: Some(ModelKind::RoughHeston), max_evaluations: Some(3), ..FitSpec::default() };
+    let fit = fit_leverage(&target, &spec);
+    assert_eq!(fit.status, FitStatus::BudgetExhausted, "{fit:?}");
+    assert!(fit.message.as_deref().is_some_and(|m| m.contains("evaluation budget")), "{fit:?}");
+    assert!(fit.params.hurst.is_finite() && fit.params.rho_nu.is_finite() && fit.leverage_rmse.is_finite());
+    // The best point reached is no worse than the start grid's (which the budget does
+    // not count) and the full fit is better still.
+    let full = fit_leverage(&target, &FitSpec { model: Some(ModelKind::RoughHeston), ..FitSpec::default() });
+    assert!(full.leverage_rmse <= fit.leverage_rmse, "{full:?} vs {fit:?}");
+    // A time budget of nothing stops before the first solver evaluation.
+    let timed = FitSpec { time_budget: Some(std::time::Duration::ZERO), ..spec };
+    let fit = fit_leverage(&target, &FitSpec { max_evaluations: None, ..timed });
+    assert_eq!(fit.status, FitStatus::BudgetExhausted, "{fit:?}");
+    assert!(fit.message.as_deref().is_some_and(|m| m.contains("time budget")), "{fit:?}");
+}
+
+/// The same input gives the same fit, bit for bit.
+#[test]
+fn fits_are_reproducible_bit_for_bit() {
+    let target = synthetic(LeverageParams { hurst: 0.2, rho_nu: -0.5, mean_reversion: 1.5 });
+    let a = fit_leverage(&target, &FitSpec::default());
+    let b = fit_leverage(&target, &FitSpec::default());
+    let bits = |f: &logstrip::analytics::calibrate::FitOutcome| {
+        [f.params.hurst, f.params.rho_nu, f.params.mean_reversion, f.leverage_rmse].map(f64::to_bits)
+    };
+    assert_eq!(bits(&a), bits(&b));
+    assert_eq!(
+        a.model_leverage_swap.iter().map(|x| x.to_bits()).collect::<Vec<_>>(),
+        b.model_leverage_swap.iter().map(|x| x.to_bits()).collect::<Vec<_>>()
+    );
+}

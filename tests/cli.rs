@@ -148,11 +148,13 @@ fn bench_prints_timings() {
     assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
     let doc: serde_json::Value = serde_json::from_slice(&out.stdout).expect("JSON");
     assert_eq!(doc["runs"], 2);
-    for key in ["analyze_us", "fit_us"] {
-        for stat in ["median", "min"] {
-            assert!(doc[key][stat].as_f64().is_some_and(|v| v > 0.0), "{key}.{stat}");
+    let snapshot = &doc["snapshots"][0];
+    for key in ["analyze_us", "curve_us", "fit_us"] {
+        for stat in ["median", "min", "max"] {
+            assert!(snapshot[key][stat].as_f64().is_some_and(|v| v > 0.0), "{key}.{stat}");
         }
     }
+    assert_eq!(doc["slowest_fit"]["file"], "demo-data/kestrel50-snapshot.json");
 }
 
 /// A slice quoted as discounted call/put mids without a forward: the forward comes

@@ -142,6 +142,7 @@ fn fuzzed_fit_with_mean_reversion_442_and_vol_of_vol_took_seven_seconds() {
         rho_nu: Some(-0.489_602_883_955_138_5),
         mean_reversion: Some(442.435_339_894_712_74),
         nu: Some(0.847_568_093_385_214_1),
+        ..FitSpec::default()
     };
     let refused = fit_leverage(&target, &spec);
     assert_eq!(refused.status, FitStatus::Failed);

@@ -17,12 +17,15 @@ use super::levenberg::LevenbergMarquardt;
 use super::models::leverage::{LeverageCurve, LeverageParams, ModelError};
 use super::quadrature::{integrate, QuadratureTolerance};
 use super::special::mittag_leffler::MittagLefflerSeries;
-use super::tolerances::{ACTIVE_BOUND_FRACTION, CALIBRATION_COST_REL_TOL, CALIBRATION_MAX_ITERATIONS};
+use super::tolerances::{
+    ACTIVE_BOUND_FRACTION, CALIBRATION_COST_REL_TOL, CALIBRATION_MAX_EVALUATIONS, CALIBRATION_MAX_ITERATIONS,
+    CALIBRATION_TIME_BUDGET_MS,
+};
 use argmin::core::{CostFunction, Error as ArgminError, Executor, Jacobian, Operator, State, TerminationReason};
 use argmin::solver::neldermead::NelderMead;
 use nalgebra::{DMatrix, DVector};
-use std::cell::Cell;
-use std::time::Instant;
+use std::cell::{Cell, RefCell};
+use std::time::{Duration, Instant};
 
 /// Which affine forward-variance model to fit.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -89,6 +92,10 @@ pub struct FitSpec {
     pub mean_reversion: Option<f64>,
     /// Vol-of-vol `nu` (not identified by leverage swaps; supplied by the user).
     pub nu: Option<f64>,
+    /// Model evaluations allowed ([`CALIBRATION_MAX_EVALUATIONS`] when `None`).
+    pub max_evaluations: Option<u64>,
+    /// Wall time allowed ([`CALIBRATION_TIME_BUDGET_MS`] when `None`).
+    pub time_budget: Option<Duration>,
 }
 
 /// Market leverage term structure to fit.
@@ -117,6 +124,9 @@ pub enum FitStatus {
     AtBound,
     /// The iteration cap was reached first.
     MaxIterations,
+    /// The evaluation or time budget ran out first (the message says which); the
+    /// parameters are the best point reached.
+    BudgetExhausted,
     /// No usable fit (too few expiries, or the model could not be evaluated).
     Failed,
 }
@@ -267,9 +277,60 @@ struct LeverageProblem<'a> {
     evaluations: &'a Cell<u64>,
     /// Residuals only rank start points: the model to about 1e-9 relative is enough.
     for_start: bool,
+    /// What the solver may spend, and the best point seen (`None` for the start grid).
+    budget: Option<&'a Budget>,
+}
+
+/// A fit's evaluation and time budget, and the best point its solver evaluated (to
+/// return when the budget runs out mid-run).
+struct Budget {
+    max_evaluations: u64,
+    deadline: Instant,
+    /// Why it ran out, once it has.
+    exhausted: Cell<Option<&'static str>>,
+    /// Cost (unweighted residuals' sum of squares) and free parameters of the best
+    /// point evaluated.
+    best: RefCell<Option<(f64, Vec<f64>)>>,
+}
+
+impl Budget {
+    /// `Err` once the budget has run out (and from then on).
+    fn spend(&self, evaluations: u64) -> Result<(), ArgminError> {
+        if self.exhausted.get().is_none() {
+            if evaluations >= self.max_evaluations {
+                self.exhausted.set(Some("evaluation"));
+            } else if Instant::now() > self.deadline {
+                self.exhausted.set(Some("time"));
+            }
+        }
+        match self.exhausted.get() {
+            Some(what) => Err(ArgminError::msg(format!("{what} budget exhausted"))),
+            None => Ok(()),
+        }
+    }
+
+    fn record(&self, x: &[f64], cost: f64) {
+        let mut best = self.best.borrow_mut();
+        if cost.is_finite() && best.as_ref().is_none_or(|(c, _)| cost < *c) {
+            *best = Some((cost, x.to_vec()));
+        }
+    }
 }
 
 impl LeverageProblem<'_> {
+    /// Residuals at `x` for the solver: counted against the budget, and the point kept
+    /// if it is the best so far.
+    fn budgeted_residuals(&self, x: &[f64]) -> Result<Vec<f64>, ArgminError> {
+        if let Some(budget) = self.budget {
+            budget.spend(self.evaluations.get())?;
+        }
+        let r = self.residuals(x).map_err(|e| ArgminError::msg(e.to_string()))?;
+        if let Some(budget) = self.budget {
+            budget.record(x, r.iter().map(|v| v * v).sum());
+        }
+        Ok(r)
+    }
+
     fn residuals(&self, x: &[f64]) -> Result<Vec<f64>, ModelError> {
         self.evaluations.set(self.evaluations.get() + 1);
         let p = self.layout.to_params(x);
@@ -284,8 +345,7 @@ impl Operator for LeverageProblem<'_> {
     type Output = DVector<f64>;
 
     fn apply(&self, u: &Self::Param) -> Result<Self::Output, ArgminError> {
-        let r = self.residuals(u.as_slice()).map_err(|e| ArgminError::msg(e.to_string()))?;
-        Ok(DVector::from_vec(r))
+        Ok(DVector::from_vec(self.budgeted_residuals(u.as_slice())?))
     }
 }
 
@@ -294,6 +354,9 @@ impl Jacobian for LeverageProblem<'_> {
     type Jacobian = DMatrix<f64>;
 
     fn jacobian(&self, x: &Self::Param) -> Result<Self::Jacobian, ArgminError> {
+        if let Some(budget) = self.budget {
+            budget.spend(self.evaluations.get())?;
+        }
         self.evaluations.set(self.evaluations.get() + 1);
         let p = self.layout.to_params(x.as_slice());
         let lg = self.curve.total_leverage_with_gradient(&p).map_err(|e| ArgminError::msg(e.to_string()))?;
@@ -310,7 +373,7 @@ impl CostFunction for LeverageProblem<'_> {
     /// The sum of squares at `x` clamped into the bounds (Nelder–Mead has no bounds of
     /// its own; outside the box it sees the cost of the nearest point inside).
     fn cost(&self, x: &Self::Param) -> Result<f64, ArgminError> {
-        let r = self.residuals(&self.layout.project(x)).map_err(|e| ArgminError::msg(e.to_string()))?;
+        let r = self.budgeted_residuals(&self.layout.project(x))?;
         Ok(r.iter().map(|x| x * x).sum())
     }
 }
@@ -407,6 +470,12 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     };
     let scale: Vec<f64> = target.taus.iter().zip(&sigma).map(|(t, s)| 1.0 / (t * s)).collect();
     let evaluations = Cell::new(0u64);
+    let budget = Budget {
+        max_evaluations: spec.max_evaluations.unwrap_or(CALIBRATION_MAX_EVALUATIONS),
+        deadline: started + spec.time_budget.unwrap_or(Duration::from_millis(CALIBRATION_TIME_BUDGET_MS)),
+        exhausted: Cell::new(None),
+        best: RefCell::new(None),
+    };
     let problem = LeverageProblem {
         curve: &curve,
         market_total: &market_total,
@@ -414,6 +483,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         layout: &layout,
         evaluations: &evaluations,
         for_start: false,
+        budget: Some(&budget),
     };
 
     // Start: best point of a small grid over the free parameters, scored on at most
@@ -444,8 +514,9 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             layout: &layout,
             evaluations: &sub_evaluations,
             for_start: true,
+            budget: None,
         },
-        None => LeverageProblem { for_start: true, ..problem },
+        None => LeverageProblem { for_start: true, budget: None, ..problem },
     };
     let grid = |name: ParamName, fixed: Option<f64>| -> Vec<f64> {
         match fixed {
@@ -493,7 +564,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         _ => 0.0,
     };
     for _ in 0..ROBUST_FIT_ROUNDS {
-        if run.status == FitStatus::Failed {
+        if run.status != FitStatus::Converged {
             break;
         }
         let params = layout.to_params(&run.x);
@@ -506,6 +577,8 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         }
         weights = next;
         let robust_scale: Vec<f64> = scale.iter().zip(&weights).map(|(s, w)| s * w.sqrt()).collect();
+        // The best point of a round is judged by that round's weights.
+        budget.best.replace(None);
         let robust = LeverageProblem { scale: &robust_scale, ..problem };
         let again = solve(&robust, &run.x);
         iterations += again.iterations;
@@ -630,6 +703,21 @@ struct SolveRun {
     residual: Option<Vec<f64>>,
 }
 
+/// The best point evaluated before the budget ran out (`x0` if none was).
+fn budget_stop(problem: &LeverageProblem<'_>, x0: &[f64], why: &ArgminError) -> SolveRun {
+    let x = problem.budget.and_then(|b| b.best.borrow().as_ref().map(|(_, x)| x.clone())).unwrap_or(x0.to_vec());
+    SolveRun {
+        x,
+        iterations: 0,
+        status: FitStatus::BudgetExhausted,
+        message: Some(format!(
+            "stopped with the best point so far: {why} after {} model evaluations",
+            problem.evaluations.get()
+        )),
+        residual: None,
+    }
+}
+
 /// Levenberg-Marquardt from `x0`, and Nelder-Mead if the model cannot be evaluated
 /// along the way.
 fn solve(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolveRun {
@@ -649,7 +737,9 @@ fn solve(problem: &LeverageProblem<'_>, x0: &[f64]) -> SolveRun {
                 residual,
             }
         }
+        Err(e) if problem.budget.and_then(|b| b.exhausted.get()).is_some() => budget_stop(problem, x0, &e),
         Err(e) => match run_nelder_mead(problem, x0) {
+            Err(e2) if problem.budget.and_then(|b| b.exhausted.get()).is_some() => budget_stop(problem, x0, &e2),
             Ok((x, iterations, reason, _)) => {
                 let converged = reason == Some(TerminationReason::SolverConverged);
                 let how = if converged { "converged" } else { "stopped at its iteration cap" };

@@ -94,6 +94,16 @@ pub const CALIBRATION_COST_REL_TOL: f64 = 1e-9;
 /// Iteration cap of the derivative-based calibration.
 pub const CALIBRATION_MAX_ITERATIONS: u64 = 60;
 
+/// Model evaluations (residuals and Jacobians, after the start grid) a fit may spend
+/// before it stops with the best point so far. Rule of thumb (no source): the fits of
+/// the generated and demo snapshots take 16 to 60, Huber rounds included.
+pub const CALIBRATION_MAX_EVALUATIONS: u64 = 400;
+
+/// Wall time a fit may spend, milliseconds, before it stops with the best point so far:
+/// about a hundred times the slowest measured fit (70 expiries, about 2 ms on a 2-core
+/// machine), so that it only ever stops a fit gone wrong.
+pub const CALIBRATION_TIME_BUDGET_MS: u64 = 250;
+
 /// A fitted parameter within this fraction of its range from a bound is reported
 /// as "at the bound".
 pub const ACTIVE_BOUND_FRACTION: f64 = 1e-6;

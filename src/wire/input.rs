@@ -398,7 +398,7 @@ fn fit_spec(doc: Option<&FitDoc>, problems: &mut Problems) -> Option<FitSpec> {
             );
         }
     }
-    Some(FitSpec { model: Some(model), hurst, rho_nu, mean_reversion, nu: doc.nu })
+    Some(FitSpec { model: Some(model), hurst, rho_nu, mean_reversion, nu: doc.nu, ..FitSpec::default() })
 }
 
 fn slice_problem(e: SliceError, slice_path: &FieldPath, quotes_field: &str, problems: &mut Problems) {

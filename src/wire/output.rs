@@ -187,7 +187,8 @@ pub struct FitResultDoc {
     /// Names of parameters held fixed.
     pub fixed: Vec<&'static str>,
     /// `converged`, `at_bound` (converged with parameters on their bounds, named in
-    /// `active_bounds` and `message`), `max_iterations` or `failed`.
+    /// `active_bounds` and `message`), `max_iterations`, `budget_exhausted` (the
+    /// evaluation or time budget ran out: the best point reached) or `failed`.
     pub status: &'static str,
     /// Why, when not converged, or which fallback was used.
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -291,6 +292,7 @@ pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitResultDoc {
             FitStatus::Converged => "converged",
             FitStatus::AtBound => "at_bound",
             FitStatus::MaxIterations => "max_iterations",
+            FitStatus::BudgetExhausted => "budget_exhausted",
             FitStatus::Failed => "failed",
         },
         message: fit.message.clone(),
