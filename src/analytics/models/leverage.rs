@@ -17,7 +17,7 @@ use crate::analytics::special::mittag_leffler::{
     rgamma_series_term, MittagLefflerError, MittagLefflerSeries, DERIV_SERIES_COND_MAX, SERIES_BUILD_TOL,
     SERIES_COND_MAX, SERIES_MAX_TERMS, SERIES_RADIUS_MAX, SERIES_TAIL_TOL,
 };
-use crate::analytics::special::mittag_leffler_contour::NegativeAxisContour;
+use crate::analytics::special::mittag_leffler_contour::{NegativeAxisChebyshev, NegativeAxisContour};
 use std::cell::RefCell;
 
 /// Parameters that the leverage swaps identify.
@@ -93,6 +93,11 @@ const HURST_STEP: f64 = 1e-7;
 /// about 1e-14.
 const CONTOUR_REL_ACCEPT: f64 = 1e-12;
 
+/// Fewest gaps beyond the series radius for which a Chebyshev interpolant
+/// ([`NegativeAxisChebyshev`], 25 to 65 contour sums to build) replaces a contour sum
+/// per gap: below it building costs more than it saves.
+const CHEBYSHEV_MIN_GAPS: usize = 64;
+
 /// Smallest radius the coefficient lists are built for: at smaller radii the derivative
 /// coefficients `(k+1) c_{k+1}` are multiplied by up to `(k+1)/r` relative to the value's
 /// terms, and building for at least 1/4 keeps the extra factor below about 100, far inside
@@ -160,6 +165,9 @@ struct PhiValues {
     d_mu: Vec<f64>,
     /// `d(Phi/c)/da`, filled on request.
     d_alpha: Vec<f64>,
+    /// The Chebyshev interpolant of `E_{a,a+2}` beyond the series radius used for
+    /// `e` (reused for the derivatives at the same point).
+    chebyshev: Option<NegativeAxisChebyshev>,
 }
 
 /// The power series of `E_{a,a+2}(z)` for one `a`: coefficients `c_k = 1/Gamma(a k + a + 2)`,
@@ -751,11 +759,21 @@ impl LeverageCurve {
                     -1.0
                 }
             };
+            out.chebyshev = None;
             if z_max > radius {
                 let mut rest = Vec::new();
                 self.with_contour(alpha, |contour| {
+                    let beyond = out.z.iter().filter(|zz| zz.abs() > radius).count();
+                    let x_lo = out.z.iter().map(|zz| -zz).filter(|x| *x > radius).fold(f64::INFINITY, f64::min);
+                    out.chebyshev = contour
+                        .filter(|_| negative && beyond >= CHEBYSHEV_MIN_GAPS)
+                        .and_then(|c| NegativeAxisChebyshev::new(c, x_lo, z_max, CONTOUR_REL_ACCEPT));
                     for (g, (e, &zz)) in out.e.iter_mut().zip(&out.z).enumerate() {
                         if zz.abs() > radius {
+                            if let Some(cheb) = &out.chebyshev {
+                                *e = cheb.eval(-zz)[0];
+                                continue;
+                            }
                             match contour.and_then(|c| c.value(zz)).filter(|v| v.1 <= CONTOUR_REL_ACCEPT) {
                                 Some((value, _)) => *e = value,
                                 None => rest.push(g),
@@ -814,10 +832,18 @@ impl LeverageCurve {
         // Beyond the series radius: both derivatives from the shared contour, where its
         // value was taken (the same nodes, so the same acceptance).
         let mut rest = Vec::new();
+        let cheb = out.chebyshev.take();
         self.with_contour(alpha, |contour| {
             for g in 0..m {
                 let zz = out.z[g];
                 if zz.abs() <= radius {
+                    continue;
+                }
+                if let Some(cheb) = cheb.as_ref().filter(|c| c.contains(-zz)) {
+                    let [value, d_z, d_a] = cheb.eval(-zz);
+                    let (t, p) = (self.gaps[g], out.t_a[g]);
+                    out.d_mu[g] = -t * p * p * d_z;
+                    out.d_alpha[g] = t * p * (self.ln_gaps[g] * (value + zz * d_z) + d_a);
                     continue;
                 }
                 match contour.and_then(|c| c.eval(zz)).filter(|v| v.rel_err_estimate <= CONTOUR_REL_ACCEPT) {
@@ -830,6 +856,7 @@ impl LeverageCurve {
                 }
             }
         });
+        out.chebyshev = cheb;
         if rest.is_empty() {
             return Ok(());
         }
