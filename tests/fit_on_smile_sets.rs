@@ -12,7 +12,7 @@
 
 use serde_json::Value;
 
-const SEED_SETS: [&str; 3] = ["tuning", "holdout", "fresh"];
+const SEED_SETS: [&str; 4] = ["tuning", "holdout", "fresh", "blind"];
 
 /// Heston-like sets and rough Heston sets with their tolerances on (H, rho nu, lambda).
 const HESTON_SETS: [&str; 5] =
