@@ -188,7 +188,8 @@ pub struct NegativeAxisChebyshev {
 }
 
 /// Degrees tried, smallest first (the interpolation points are the degree + 1
-/// Chebyshev extrema).
+/// Chebyshev extrema). Nested degrees (16, 32, 64, reusing the points) measured
+/// slower on the 35 x 60 fits: 24 usually suffices there, where 16 never does.
 pub const CHEBYSHEV_DEGREES: [usize; 3] = [24, 40, 64];
 
 /// Relative size of the last two Chebyshev coefficients below which each series has
@@ -217,7 +218,8 @@ impl NegativeAxisChebyshev {
                     Some([x * v.value, x * x * v.d_z, x * x * v.d_alpha])
                 })
                 .collect();
-            let coefficients = chebyshev_coefficients(&samples?);
+            let samples = samples?;
+            let coefficients = chebyshev_coefficients(&samples);
             let largest = coefficients.iter().fold([0.0f64; 3], |m, c| std::array::from_fn(|l| m[l].max(c[l].abs())));
             let tail = &coefficients[degree - 1..];
             let converged = (0..3).all(|l| tail.iter().all(|c| c[l].abs() <= CHEBYSHEV_TAIL_TOL[l] * largest[l]));
@@ -262,12 +264,20 @@ impl NegativeAxisChebyshev {
 /// `n` is at most 64).
 fn chebyshev_coefficients(samples: &[[f64; 3]]) -> Vec<[f64; 3]> {
     let n = samples.len() - 1;
+    // cos(pi m / n) for m in 0..2n: cos(pi k j / n) is entry (k j) mod 2n.
+    let cosines: Vec<f64> = (0..2 * n).map(|m| (std::f64::consts::PI * m as f64 / n as f64).cos()).collect();
     (0..=n)
         .map(|k| {
             let mut sum = [0.0f64; 3];
+            // (k j) mod 2n, stepped by k (no division in the loop).
+            let mut at = 0;
             for (j, f) in samples.iter().enumerate() {
                 let weight = if j == 0 || j == n { 0.5 } else { 1.0 };
-                let c = (std::f64::consts::PI * (k * j) as f64 / n as f64).cos() * weight;
+                let c = cosines[at] * weight;
+                at += k;
+                if at >= 2 * n {
+                    at -= 2 * n;
+                }
                 for l in 0..3 {
                     sum[l] += c * f[l];
                 }
