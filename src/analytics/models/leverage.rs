@@ -889,7 +889,13 @@ impl LeverageCurve {
                 if cache.len() >= SERIES_CACHE_SIZE {
                     cache.remove(0);
                 }
-                cache.push((key, NegativeAxisContour::new(alpha, alpha + 2.0)));
+                // Every a shares the parabola of b = a + 2: move the last contour's
+                // nodes to this a rather than build them afresh.
+                let contour = match cache.iter().rev().find_map(|(_, c)| c.as_ref()) {
+                    Some(previous) => previous.with_alpha(alpha),
+                    None => NegativeAxisContour::new(alpha, alpha + 2.0),
+                };
+                cache.push((key, contour));
                 cache.len() - 1
             }
         };

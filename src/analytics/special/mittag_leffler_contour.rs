@@ -38,6 +38,8 @@ struct Node {
     /// `|weight|` and `|weight_log|`, for the rounding estimates.
     abs_weight: f64,
     abs_weight_log: f64,
+    /// `ln s`, to move to another `a` at the same `b - a`.
+    ln_s: Complex64,
 }
 
 /// `E_{a,b}` on the negative real axis from shared contour nodes (see the module docs).
@@ -88,10 +90,31 @@ impl NegativeAxisContour {
                 let trapezoid = if k == 0 { 1.0 } else { 2.0 };
                 let weight = s.exp() * (ln_s * (alpha - beta)).exp() * ds * (trapezoid * h / (2.0 * PI));
                 let weight_log = weight * s_alpha * ln_s;
-                Node { s_alpha, weight, weight_log, abs_weight: weight.norm(), abs_weight_log: weight_log.norm() }
+                Node { s_alpha, weight, weight_log, abs_weight: weight.norm(), abs_weight_log: weight_log.norm(), ln_s }
             })
             .collect();
         Some(Self { alpha, beta, nodes })
+    }
+
+    /// The nodes for `alpha` with the same `beta - alpha`: the parabola depends on
+    /// `beta - alpha` only (through the branch point's strength), and so do the weights
+    /// `e^s s^(alpha - beta) s'`; only `s^alpha` is recomputed (one complex exponential
+    /// per node instead of a logarithm and three exponentials). `None` for `alpha`
+    /// outside (0, 1].
+    pub fn with_alpha(&self, alpha: f64) -> Option<Self> {
+        if !(alpha > 0.0 && alpha <= 1.0) {
+            return None;
+        }
+        let nodes = self
+            .nodes
+            .iter()
+            .map(|node| {
+                let s_alpha = (node.ln_s * alpha).exp();
+                let weight_log = node.weight * s_alpha * node.ln_s;
+                Node { s_alpha, weight_log, abs_weight_log: weight_log.norm(), ..*node }
+            })
+            .collect();
+        Some(Self { alpha, beta: alpha + (self.beta - self.alpha), nodes })
     }
 
     /// `alpha`.
@@ -320,6 +343,24 @@ mod tests {
                     "dE/da at a={alpha} z={z}: {} vs {fd}",
                     got.d_alpha
                 );
+            }
+        }
+    }
+
+    #[test]
+    fn moving_to_another_alpha_matches_new_nodes() {
+        // Same parabola (b - a fixed), so the same sums up to the rounding of s^a: to
+        // 1e-14 relative of the value.
+        let base = NegativeAxisContour::new(0.6, 2.6).expect("nodes");
+        for alpha in [0.55, 0.8, 0.97, 1.0] {
+            let moved = base.with_alpha(alpha).expect("in range");
+            let fresh = NegativeAxisContour::new(alpha, alpha + 2.0).expect("nodes");
+            assert_eq!(moved.len(), fresh.len());
+            for z in [-0.7, -3.0, -25.0] {
+                let (a, b) = (moved.eval(z).expect("negative"), fresh.eval(z).expect("negative"));
+                assert!((a.value - b.value).abs() <= 1e-14 * b.value.abs(), "a={alpha} z={z}");
+                assert!((a.d_z - b.d_z).abs() <= 1e-14 * b.d_z.abs(), "a={alpha} z={z}");
+                assert!((a.d_alpha - b.d_alpha).abs() <= 1e-13 * b.value.abs(), "a={alpha} z={z}");
             }
         }
     }
