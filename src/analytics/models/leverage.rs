@@ -768,12 +768,23 @@ impl LeverageCurve {
                     out.chebyshev = contour
                         .filter(|_| negative && beyond >= CHEBYSHEV_MIN_GAPS)
                         .and_then(|c| NegativeAxisChebyshev::new(c, x_lo, z_max, CONTOUR_REL_ACCEPT));
+                    if let Some(cheb) = &out.chebyshev {
+                        let (gaps, xs): (Vec<usize>, Vec<f64>) = out
+                            .z
+                            .iter()
+                            .enumerate()
+                            .filter(|(_, zz)| zz.abs() > radius)
+                            .map(|(g, zz)| (g, -zz))
+                            .unzip();
+                        let mut values = Vec::with_capacity(xs.len());
+                        cheb.values(&xs, &mut values);
+                        for (g, v) in gaps.into_iter().zip(values) {
+                            out.e[g] = v;
+                        }
+                        return;
+                    }
                     for (g, (e, &zz)) in out.e.iter_mut().zip(&out.z).enumerate() {
                         if zz.abs() > radius {
-                            if let Some(cheb) = &out.chebyshev {
-                                *e = cheb.eval(-zz)[0];
-                                continue;
-                            }
                             match contour.and_then(|c| c.value(zz)).filter(|v| v.1 <= CONTOUR_REL_ACCEPT) {
                                 Some((value, _)) => *e = value,
                                 None => rest.push(g),
@@ -833,17 +844,28 @@ impl LeverageCurve {
         // value was taken (the same nodes, so the same acceptance).
         let mut rest = Vec::new();
         let cheb = out.chebyshev.take();
+        let mut interpolated = vec![false; m];
+        if let Some(cheb) = &cheb {
+            let (gaps, xs): (Vec<usize>, Vec<f64>) = out
+                .z
+                .iter()
+                .enumerate()
+                .filter(|(_, zz)| zz.abs() > radius && cheb.contains(-**zz))
+                .map(|(g, zz)| (g, -zz))
+                .unzip();
+            let mut values = Vec::with_capacity(xs.len());
+            cheb.eval_many(&xs, &mut values);
+            for (g, [value, d_z, d_a]) in gaps.into_iter().zip(values) {
+                let (t, p, zz) = (self.gaps[g], out.t_a[g], out.z[g]);
+                out.d_mu[g] = -t * p * p * d_z;
+                out.d_alpha[g] = t * p * (self.ln_gaps[g] * (value + zz * d_z) + d_a);
+                interpolated[g] = true;
+            }
+        }
         self.with_contour(alpha, |contour| {
             for g in 0..m {
                 let zz = out.z[g];
-                if zz.abs() <= radius {
-                    continue;
-                }
-                if let Some(cheb) = cheb.as_ref().filter(|c| c.contains(-zz)) {
-                    let [value, d_z, d_a] = cheb.eval(-zz);
-                    let (t, p) = (self.gaps[g], out.t_a[g]);
-                    out.d_mu[g] = -t * p * p * d_z;
-                    out.d_alpha[g] = t * p * (self.ln_gaps[g] * (value + zz * d_z) + d_a);
+                if zz.abs() <= radius || interpolated[g] {
                     continue;
                 }
                 match contour.and_then(|c| c.eval(zz)).filter(|v| v.rel_err_estimate <= CONTOUR_REL_ACCEPT) {
