@@ -230,7 +230,8 @@ pub struct DownWeightedDoc {
     /// Its weight in the fit's loss relative to an expiry of median standard error
     /// that fits (at most 1).
     pub weight: f64,
-    /// `robust_loss` (it missed the model by more than the robust loss's cut) or
+    /// `robust_loss` (it missed the model by more than the robust loss's cut, for a
+    /// weight below one half) or
     /// `large_standard_error` (its standard error is above 10 times the median).
     pub reason: &'static str,
 }
