@@ -469,12 +469,15 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     };
     let market_total: Vec<f64> = target.taus.iter().zip(&target.leverage_swap).map(|(t, l)| t * l).collect();
     let rms = (target.leverage_swap.iter().map(|l| l * l).sum::<f64>() / n as f64).sqrt().max(1e-6);
-    let sigma: Vec<f64> = match &target.uncertainty {
-        Some(u) if u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0) => {
+    // Uncertainties are used only when every expiry has a finite positive one.
+    let uncertainty =
+        target.uncertainty.as_ref().filter(|u| u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0));
+    let sigma: Vec<f64> = match uncertainty {
+        Some(u) => {
             let med = super::stats::median(u).unwrap_or(1.0);
             u.iter().map(|x| x / med * rms).collect()
         }
-        _ => vec![rms; n],
+        None => vec![rms; n],
     };
     let scale: Vec<f64> = target.taus.iter().zip(&sigma).map(|(t, s)| 1.0 / (t * s)).collect();
     let evaluations = Cell::new(0u64);
@@ -565,12 +568,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let mut weights = vec![1.0; n];
     // One standard error in residual units (residuals are in units of `rms` scaled by
     // each expiry's uncertainty over their median).
-    let sigma_unit = match &target.uncertainty {
-        Some(u) if u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0) => {
-            super::stats::median(u).unwrap_or(0.0) / rms
-        }
-        _ => 0.0,
-    };
+    let sigma_unit = uncertainty.map_or(0.0, |u| super::stats::median(u).unwrap_or(0.0) / rms);
     for _ in 0..ROBUST_FIT_ROUNDS {
         if run.status != FitStatus::Converged {
             break;

@@ -19,6 +19,7 @@ use crate::analytics::special::mittag_leffler::{
 };
 use crate::analytics::special::mittag_leffler_contour::{NegativeAxisChebyshev, NegativeAxisContour};
 use std::cell::RefCell;
+use std::convert::Infallible;
 
 /// Parameters that the leverage swaps identify.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -79,6 +80,26 @@ pub struct LeverageCurve {
 
 /// Evaluators kept per curve (the point, its Hurst-derivative neighbour, a trial).
 const SERIES_CACHE_SIZE: usize = 4;
+
+/// Index of the entry keyed `key` (by `key_of`) in a cache of the last few `a`; when
+/// missing, the oldest entry is dropped if the cache holds [`SERIES_CACHE_SIZE`], and
+/// `build` makes the new one from the entries left.
+fn cache_slot<T, E>(
+    cache: &mut Vec<T>,
+    key: u64,
+    key_of: impl Fn(&T) -> u64,
+    build: impl FnOnce(&[T]) -> Result<T, E>,
+) -> Result<usize, E> {
+    if let Some(i) = cache.iter().position(|entry| key_of(entry) == key) {
+        return Ok(i);
+    }
+    if cache.len() >= SERIES_CACHE_SIZE {
+        cache.remove(0);
+    }
+    let entry = build(cache)?;
+    cache.push(entry);
+    Ok(cache.len() - 1)
+}
 
 /// Step in `H` (= in `a`) of the backward difference used for the rare gaps that neither
 /// the series nor the shared contour covers (positive `z`, or a contour whose rounding
@@ -681,33 +702,19 @@ impl LeverageCurve {
     /// The cached series evaluator of `E_{alpha,alpha+2}` (robust outside the series radius).
     fn with_evaluator<R>(&self, alpha: f64, f: impl FnOnce(&MittagLefflerSeries) -> R) -> Result<R, ModelError> {
         let mut cache = self.series_cache.borrow_mut();
-        let key = alpha.to_bits();
-        let index = match cache.iter().position(|(k, _)| *k == key) {
-            Some(i) => i,
-            None => {
-                if cache.len() >= SERIES_CACHE_SIZE {
-                    cache.remove(0);
-                }
-                cache.push((key, MittagLefflerSeries::new(alpha, alpha + 2.0)?));
-                cache.len() - 1
-            }
-        };
+        let index = cache_slot(
+            &mut cache,
+            alpha.to_bits(),
+            |(k, _)| *k,
+            |_| Ok::<_, ModelError>((alpha.to_bits(), MittagLefflerSeries::new(alpha, alpha + 2.0)?)),
+        )?;
         Ok(f(&cache[index].1))
     }
 
     /// The cached coefficient lists for `alpha` (built on first use).
     fn phi_series(cache: &mut Vec<PhiSeries>, alpha: f64) -> &mut PhiSeries {
-        let key = alpha.to_bits();
-        let index = match cache.iter().position(|s| s.alpha.to_bits() == key) {
-            Some(i) => i,
-            None => {
-                if cache.len() >= SERIES_CACHE_SIZE {
-                    cache.remove(0);
-                }
-                cache.push(PhiSeries::new(alpha));
-                cache.len() - 1
-            }
-        };
+        let Ok(index) =
+            cache_slot(cache, alpha.to_bits(), |s| s.alpha.to_bits(), |_| Ok::<_, Infallible>(PhiSeries::new(alpha)));
         &mut cache[index]
     }
 
@@ -904,23 +911,20 @@ impl LeverageCurve {
     /// use; `None` when no contour meets its target).
     fn with_contour<R>(&self, alpha: f64, f: impl FnOnce(Option<&NegativeAxisContour>) -> R) -> R {
         let mut cache = self.contour_cache.borrow_mut();
-        let key = alpha.to_bits();
-        let index = match cache.iter().position(|(k, _)| *k == key) {
-            Some(i) => i,
-            None => {
-                if cache.len() >= SERIES_CACHE_SIZE {
-                    cache.remove(0);
-                }
-                // Every a shares the parabola of b = a + 2: move the last contour's
-                // nodes to this a rather than build them afresh.
-                let contour = match cache.iter().rev().find_map(|(_, c)| c.as_ref()) {
+        let Ok(index) = cache_slot(
+            &mut cache,
+            alpha.to_bits(),
+            |(k, _)| *k,
+            |kept| {
+                // Every a shares the parabola of b = a + 2: move the last contour's nodes to
+                // this a rather than build them afresh.
+                let contour = match kept.iter().rev().find_map(|(_, c)| c.as_ref()) {
                     Some(previous) => previous.with_alpha(alpha),
                     None => NegativeAxisContour::new(alpha, alpha + 2.0),
                 };
-                cache.push((key, contour));
-                cache.len() - 1
-            }
-        };
+                Ok::<_, Infallible>((alpha.to_bits(), contour))
+            },
+        );
         f(cache[index].1.as_ref())
     }
 
