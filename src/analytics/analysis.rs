@@ -190,7 +190,7 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
                 crate::analytics::smile::SUSPECT_HALF_SPREADS
             ));
         }
-        let butterfly = crate::analytics::smile::butterfly_over_quotes(&smile.curve, smile.quoted_range);
+        let butterfly = smile.butterfly_over_quotes();
         if let Some(b) = butterfly {
             warnings.push(format!(
                 "butterfly arbitrage: Durrleman's g < 0 for log-moneyness in [{:.3}, {:.3}], minimum {:.3e} at {:.3}",

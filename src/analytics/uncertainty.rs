@@ -86,26 +86,7 @@ pub fn integrand_sensitivity(k: f64, w: f64, tau: f64) -> [f64; 3] {
 /// edge quotes also the integral of the sensitivity over their wing (which moves
 /// with the edge value), integrated to ten ATM deviations beyond the edge.
 pub fn knot_sensitivities(knots: &[f64], w: impl Fn(f64) -> f64, tau: f64) -> Vec<[f64; 3]> {
-    let n = knots.len();
-    let mut out = Vec::with_capacity(n);
-    for j in 0..n {
-        let left = if j == 0 { knots[0] } else { 0.5 * (knots[j - 1] + knots[j]) };
-        let right = if j + 1 == n { knots[n - 1] } else { 0.5 * (knots[j] + knots[j + 1]) };
-        let at = integrand_sensitivity(knots[j], w(knots[j]), tau);
-        out.push(at.map(|x| x * (right - left)));
-    }
-    if n == 0 {
-        return out;
-    }
-    let reach = 10.0 * w(0.0).max(1e-8).sqrt();
-    for (j, direction) in [(0, -1.0), (n - 1, 1.0)] {
-        let edge = knots[j];
-        let wing = wing_integral(|k| integrand_sensitivity(k, w(k), tau), edge, edge + direction * reach);
-        for l in 0..3 {
-            out[j][l] += wing[l];
-        }
-    }
-    out
+    knot_and_parameter_sensitivities(knots, None, w, tau).0
 }
 
 /// Sensitivity of each level to the SVI parameters through wings that follow the SVI
@@ -118,33 +99,80 @@ pub fn wing_parameter_sensitivity(
     w: impl Fn(f64) -> f64,
     tau: f64,
 ) -> [[f64; 5]; 3] {
-    let reach = 10.0 * w(0.0).max(1e-8).sqrt();
     let mut out = [[0.0; 5]; 3];
+    let reach = wing_reach(&w);
     for (edge, direction) in [(edges.0, -1.0), (edges.1, 1.0)] {
-        let at_edge = svi.total_variance_gradient(edge);
-        for a in 0..5 {
-            let integrand = |k: f64| {
-                let s = integrand_sensitivity(k, w(k), tau);
-                let g = svi.total_variance_gradient(k)[a] - at_edge[a];
-                [s[0] * g, s[1] * g, s[2] * g]
-            };
-            let part = wing_integral(integrand, edge, edge + direction * reach);
-            for l in 0..3 {
-                out[l][a] += part[l];
-            }
-        }
+        let part = wing_integrals(edge, edge + direction * reach, &w, tau, Some(svi)).1;
+        add_parameter_part(&mut out, &part);
     }
     out
 }
 
-/// `integral f` from `a` to `b` (either order, signed to the outward direction's
-/// length) by composite Simpson on 64 panels: the sensitivity is smooth and its
-/// integral is only an error-bar weight.
-fn wing_integral(f: impl Fn(f64) -> [f64; 3], a: f64, b: f64) -> [f64; 3] {
+/// [`knot_sensitivities`] and, when the wings follow the SVI base `svi` beyond the
+/// outermost knots, [`wing_parameter_sensitivity`] (zero otherwise), from one walk
+/// over each wing: both integrate the same sensitivity at the same points, so the
+/// curve and the Black vega are evaluated once per point instead of six times.
+pub fn knot_and_parameter_sensitivities(
+    knots: &[f64],
+    svi: Option<&SviParams>,
+    w: impl Fn(f64) -> f64,
+    tau: f64,
+) -> (Vec<[f64; 3]>, [[f64; 5]; 3]) {
+    let n = knots.len();
+    let mut out = Vec::with_capacity(n);
+    for j in 0..n {
+        let left = if j == 0 { knots[0] } else { 0.5 * (knots[j - 1] + knots[j]) };
+        let right = if j + 1 == n { knots[n - 1] } else { 0.5 * (knots[j] + knots[j + 1]) };
+        let at = integrand_sensitivity(knots[j], w(knots[j]), tau);
+        out.push(at.map(|x| x * (right - left)));
+    }
+    let mut parameters = [[0.0; 5]; 3];
+    if n == 0 {
+        return (out, parameters);
+    }
+    let reach = wing_reach(&w);
+    for (j, direction) in [(0, -1.0), (n - 1, 1.0)] {
+        let edge = knots[j];
+        let (wing, part) = wing_integrals(edge, edge + direction * reach, &w, tau, svi);
+        for l in 0..3 {
+            out[j][l] += wing[l];
+        }
+        add_parameter_part(&mut parameters, &part);
+    }
+    (out, parameters)
+}
+
+/// How far beyond an edge the sensitivities are integrated: ten ATM deviations.
+fn wing_reach(w: &impl Fn(f64) -> f64) -> f64 {
+    10.0 * w(0.0).max(1e-8).sqrt()
+}
+
+fn add_parameter_part(total: &mut [[f64; 5]; 3], part: &[[f64; 5]; 3]) {
+    for l in 0..3 {
+        for a in 0..5 {
+            total[l][a] += part[l][a];
+        }
+    }
+}
+
+/// Over the wing from `edge` to `end`: the integral of each level's sensitivity to
+/// total variance, and with `svi` also of that sensitivity times the change of SVI's
+/// total variance in each parameter relative to its value at `edge` (zero without).
+/// Composite Simpson on 64 panels (signed to the outward direction's length): the
+/// sensitivity is smooth and its integral is only an error-bar weight.
+fn wing_integrals(
+    edge: f64,
+    end: f64,
+    w: &impl Fn(f64) -> f64,
+    tau: f64,
+    svi: Option<&SviParams>,
+) -> ([f64; 3], [[f64; 5]; 3]) {
     const PANELS: usize = 64;
-    let (lo, hi) = if a < b { (a, b) } else { (b, a) };
+    let (lo, hi) = if edge < end { (edge, end) } else { (end, edge) };
     let h = (hi - lo) / PANELS as f64;
+    let at_edge = svi.map(|p| p.total_variance_gradient(edge));
     let mut sum = [0.0; 3];
+    let mut parameter_sum = [[0.0; 5]; 3];
     for i in 0..=PANELS {
         let weight = if i == 0 || i == PANELS {
             1.0
@@ -153,12 +181,22 @@ fn wing_integral(f: impl Fn(f64) -> [f64; 3], a: f64, b: f64) -> [f64; 3] {
         } else {
             2.0
         };
-        let v = f(lo + h * i as f64);
+        let k = lo + h * i as f64;
+        let s = integrand_sensitivity(k, w(k), tau);
         for l in 0..3 {
-            sum[l] += weight * v[l];
+            sum[l] += weight * s[l];
+        }
+        if let (Some(p), Some(at_edge)) = (svi, at_edge) {
+            let gradient = p.total_variance_gradient(k);
+            for a in 0..5 {
+                let g = gradient[a] - at_edge[a];
+                for l in 0..3 {
+                    parameter_sum[l][a] += weight * (s[l] * g);
+                }
+            }
         }
     }
-    sum.map(|s| s * h / 3.0)
+    (sum.map(|s| s * h / 3.0), parameter_sum.map(|row| row.map(|s| s * h / 3.0)))
 }
 
 /// Standard deviation of each level from the quotes' noise, for level sensitivities
@@ -186,10 +224,16 @@ pub fn quote_noise_errors(
         None => None,
     };
     let sd = noise_sd(noise, &jacobian, &normal, smoother.as_ref())?;
+    // H' u for the three levels' sensitivities at once.
+    let hat_transposed = match (smoother.as_ref(), &noise.spline) {
+        (Some(smoother), Some((weights, _))) => Some(hat_transpose_times(smoother, weights, c)),
+        _ => None,
+    };
     let mut out = [0.0; 3];
     for (l, slot) in out.iter_mut().enumerate() {
         let u: Vec<f64> = c.iter().map(|row| row[l]).collect();
-        let mut r = response(noise, &jacobian, &normal, smoother.as_ref(), &u);
+        let h_u: Option<Vec<f64>> = hat_transposed.as_ref().map(|h| h.iter().map(|row| row[l]).collect());
+        let mut r = response(noise, &jacobian, &normal, h_u.as_deref(), &u);
         // Levels that move with SVI's parameters directly (wings that follow SVI):
         // d' N^-1 A' W y responds to the quotes by W A N^-1 d.
         let z = normal * nalgebra::Vector5::from_column_slice(&parameter_sensitivity[l]);
@@ -202,22 +246,22 @@ pub fn quote_noise_errors(
     Some(out)
 }
 
-/// `T' u = P' u + H' u - P' H' u`: how the level `u' g` responds to each quote.
+/// `T' u = P' u + H' u - P' H' u`: how the level `u' g` responds to each quote, with
+/// `H' u` given when the smile has a residual spline.
 fn response(
     noise: &QuoteNoise,
     jacobian: &[[f64; 5]],
     normal_inverse: &nalgebra::Matrix5<f64>,
-    smoother: Option<&smoothing_spline::Smoother>,
+    h_u: Option<&[f64]>,
     u: &[f64],
 ) -> Vec<f64> {
     let p_u = projection_transpose_times(jacobian, &noise.svi_weights, normal_inverse, u);
-    match (smoother, &noise.spline) {
-        (Some(smoother), Some((weights, _))) => {
-            let h_u = hat_transpose_times(smoother, weights, u);
-            let p_h_u = projection_transpose_times(jacobian, &noise.svi_weights, normal_inverse, &h_u);
+    match h_u {
+        Some(h_u) => {
+            let p_h_u = projection_transpose_times(jacobian, &noise.svi_weights, normal_inverse, h_u);
             (0..u.len()).map(|i| p_u[i] + h_u[i] - p_h_u[i]).collect()
         }
-        _ => p_u,
+        None => p_u,
     }
 }
 
@@ -236,17 +280,10 @@ fn noise_sd(
     };
     let trace_p: f64 = (0..n).map(|i| nalgebra::Vector5::from_column_slice(&jacobian[i]).dot(&p_row(i))).sum();
     let (trace_h, trace_hp) = match (&noise.spline, smoother) {
-        (Some((spline_weights, lambda)), Some(smoother)) => {
-            let fit = smoothing_spline::fit(&noise.k, &noise.residual, spline_weights, *lambda).ok()?;
-            let trace_h = fit.degrees_of_freedom();
+        (Some(_), Some(smoother)) => {
+            let trace_h = smoother.degrees_of_freedom();
             // (H P)_ii = (H A)_i . N^-1 a_i w_i, H applied to each column of A.
-            let mut h_a = vec![[0.0; 5]; n];
-            for a in 0..5 {
-                let column: Vec<f64> = jacobian.iter().map(|row| row[a]).collect();
-                for (row, v) in h_a.iter_mut().zip(smoother.smooth(&column)) {
-                    row[a] = v;
-                }
-            }
+            let h_a = smoother.smooth_lanes(jacobian);
             let trace_hp: f64 = (0..n).map(|i| nalgebra::Vector5::from_column_slice(&h_a[i]).dot(&p_row(i))).sum();
             (trace_h, trace_hp)
         }
@@ -263,10 +300,11 @@ fn noise_sd(
 pub const MIN_RESIDUAL_DOF: f64 = 0.5;
 
 /// `H' u = W (W + lambda K)^-1 u`: the smoothing spline of the data `u / W` with
-/// weights `W` and the smoother's `lambda`, times `W`.
-fn hat_transpose_times(smoother: &smoothing_spline::Smoother, weights: &[f64], u: &[f64]) -> Vec<f64> {
-    let data: Vec<f64> = u.iter().zip(weights).map(|(u, w)| u / w).collect();
-    smoother.smooth(&data).iter().zip(weights).map(|(g, w)| g * w).collect()
+/// weights `W` and the smoother's `lambda`, times `W`, for the three levels' `u` at
+/// once (`u[i][l]`).
+fn hat_transpose_times(smoother: &smoothing_spline::Smoother, weights: &[f64], u: &[[f64; 3]]) -> Vec<[f64; 3]> {
+    let data: Vec<[f64; 3]> = u.iter().zip(weights).map(|(u, w)| u.map(|u| u / w)).collect();
+    smoother.smooth_lanes(&data).iter().zip(weights).map(|(g, w)| g.map(|g| g * w)).collect()
 }
 
 /// `A' W A` with a ridge of 1e-12 of its trace (a parameter the quotes do not pin,
@@ -332,13 +370,18 @@ pub const WING_LEVEL_TOL: f64 = 1e-5;
 pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
     let noise = smile.noise.as_ref()?;
     let curve = &smile.curve;
-    let c = knot_sensitivities(&noise.k, |k| curve.total_variance(k), tau);
-    let parameters = match curve {
+    let total_variance = |k: f64| curve.total_variance(k);
+    let (c, parameters) = match curve {
         SmileCurve::SviSpline(spline) if spline.wings_from_svi => {
             let edges = spline.edges();
-            wing_parameter_sensitivity(&spline.svi, (edges[0], edges[1]), |k| curve.total_variance(k), tau)
+            if noise.k.first() == Some(&edges[0]) && noise.k.last() == Some(&edges[1]) {
+                knot_and_parameter_sensitivities(&noise.k, Some(&spline.svi), total_variance, tau)
+            } else {
+                let c = knot_sensitivities(&noise.k, total_variance, tau);
+                (c, wing_parameter_sensitivity(&spline.svi, (edges[0], edges[1]), total_variance, tau))
+            }
         }
-        _ => [[0.0; 5]; 3],
+        _ => (knot_sensitivities(&noise.k, total_variance, tau), [[0.0; 5]; 3]),
     };
     let quote_noise = quote_noise_errors(noise, &c, &parameters)?;
     let wings = match curve {
@@ -378,12 +421,33 @@ mod tests {
         let normal = normal_matrix(&jacobian, &noise.svi_weights).expect("normal");
         let u: Vec<f64> = (0..12).map(|i| 1.0 + i as f64).collect();
         let smoother = smoothing_spline::Smoother::new(&k, &[1.0; 12], 1e-14).expect("smoother");
-        let t_u = response(&noise, &jacobian, &normal, Some(&smoother), &u);
+        let rows: Vec<[f64; 3]> = u.iter().map(|&u| [u; 3]).collect();
+        let h_u: Vec<f64> = hat_transpose_times(&smoother, &[1.0; 12], &rows).iter().map(|r| r[0]).collect();
+        let t_u = response(&noise, &jacobian, &normal, Some(&h_u), &u);
         for (got, want) in t_u.iter().zip(&u) {
             assert!((got - want).abs() < 1e-8 * want, "{got} vs {want}");
         }
         let sd = noise_sd(&noise, &jacobian, &normal, Some(&smoother)).expect("sd");
         assert!(sd.iter().all(|s| s.abs() < 1e-300));
+    }
+
+    #[test]
+    fn one_walk_gives_both_sensitivities_to_the_bit() {
+        // Identity: the fused walk sums the same terms in the same order as the two
+        // separate integrals.
+        let svi = SviParams { a: 0.01, b: 0.1, rho: -0.4, m: 0.02, sigma: 0.2 };
+        let knots: Vec<f64> = (0..9).map(|i| -0.3 + 0.07 * i as f64).collect();
+        let w = |k: f64| svi.total_variance(k) * 1.01;
+        let (c, parameters) = knot_and_parameter_sensitivities(&knots, Some(&svi), w, 0.7);
+        let alone = knot_sensitivities(&knots, w, 0.7);
+        let parameters_alone = wing_parameter_sensitivity(&svi, (knots[0], knots[8]), w, 0.7);
+        for (a, b) in c.iter().flatten().zip(alone.iter().flatten()) {
+            assert_eq!(a.to_bits(), b.to_bits());
+        }
+        for (a, b) in parameters.iter().flatten().zip(parameters_alone.iter().flatten()) {
+            assert_eq!(a.to_bits(), b.to_bits());
+        }
+        assert!(parameters.iter().flatten().any(|v| v.abs() > 0.0));
     }
 
     #[test]

@@ -186,6 +186,18 @@ pub struct FittedSmile {
     pub notes: Vec<String>,
     /// What the levels' standard errors need from the fit (SVI-based smiles only).
     pub noise: Option<crate::analytics::uncertainty::QuoteNoise>,
+    /// [`butterfly_over_quotes`] of `curve` over `quoted_range`, when the fit already
+    /// made that check (the default smile does, to choose its smoothing): `None` when
+    /// it did not, `Some(None)` when the curve passed.
+    pub butterfly: Option<Option<ButterflyViolation>>,
+}
+
+impl FittedSmile {
+    /// [`butterfly_over_quotes`] of the curve over its quoted range: the fit's own
+    /// check where it made one, else a scan now.
+    pub fn butterfly_over_quotes(&self) -> Option<ButterflyViolation> {
+        self.butterfly.unwrap_or_else(|| butterfly_over_quotes(&self.curve, self.quoted_range))
+    }
 }
 
 /// A kept quote further than this many half spreads from the fitted smile is named as

@@ -233,6 +233,7 @@ pub fn fit(quotes: &[SmileQuote], tau: f64) -> Result<FittedSmile, SmileError> {
         quoted_range: range,
         notes: Vec::new(),
         noise: None,
+        butterfly: None,
     })
 }
 

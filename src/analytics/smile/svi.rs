@@ -788,6 +788,7 @@ pub fn fit_from(
         quoted_range: (quotes[0].k, quotes[n - 1].k),
         notes: Vec::new(),
         noise: Some(noise),
+        butterfly: None,
     })
 }
 

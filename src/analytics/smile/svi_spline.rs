@@ -20,7 +20,7 @@
 //! clean quotes are never called stale.
 
 use super::svi::{self, SlopePrior, SviParams, WarmStart};
-use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
+use super::{rmse_vol, ButterflyViolation, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
 use crate::analytics::smoothing_spline::{self, NaturalCubic};
 use crate::analytics::tolerances::{MAX_WING_SLOPE, SPLINE_REPLICATION_REL_TOL};
 use crate::analytics::uncertainty::QuoteNoise;
@@ -340,7 +340,7 @@ const ARBITRAGE_SMOOTHING_STEPS: usize = 10;
 /// The curve with a residual spline smoothed just enough to leave no butterfly
 /// arbitrage over the quotes ([`super::butterfly_over_quotes`]) where cross-validation
 /// left some: the smoothing grows a hundredfold a step until the check passes. Returns
-/// the curve and its smoothing. Without
+/// the curve, its smoothing and the curve's butterfly check. Without
 /// bid/ask cross-validation can take a few wiggles of quote noise for shape; the demo
 /// day's 60-quote smiles (0.08 vol points of noise) showed Durrleman's `g` down to -1.5
 /// on three expiries where the SVI base has none. When no step passes (the base
@@ -351,11 +351,12 @@ fn arbitrage_free_smoothing(
     asymptotes: [Option<f64>; 2],
     noisy: bool,
     quoted_range: (f64, f64),
-) -> (SmileCurve, f64) {
-    if super::butterfly_over_quotes(&curve, quoted_range).is_none() {
-        return (curve, residual.lambda);
+) -> (SmileCurve, f64, Option<ButterflyViolation>) {
+    let first_check = super::butterfly_over_quotes(&curve, quoted_range);
+    if first_check.is_none() {
+        return (curve, residual.lambda, None);
     }
-    let Some(base) = curve.svi_base().copied() else { return (curve, residual.lambda) };
+    let Some(base) = curve.svi_base().copied() else { return (curve, residual.lambda, first_check) };
     let [x, y, weight] = &residual.data;
     let mut lambda = residual.lambda.max(f64::MIN_POSITIVE);
     for _ in 0..ARBITRAGE_SMOOTHING_STEPS {
@@ -363,10 +364,10 @@ fn arbitrage_free_smoothing(
         let Ok(smoother) = smoothing_spline::fit(x, y, weight, lambda) else { break };
         let candidate = SmileCurve::SviSpline(SviSpline::assemble(base, smoother.spline, asymptotes, noisy));
         if super::butterfly_over_quotes(&candidate, quoted_range).is_none() {
-            return (candidate, lambda);
+            return (candidate, lambda, None);
         }
     }
-    (curve, residual.lambda)
+    (curve, residual.lambda, first_check)
 }
 
 /// Largest asymptotic wing slope, as a multiple of the SVI base's asymptotic slope.
@@ -491,14 +492,14 @@ pub fn fit(
         _ => false,
     };
     let quoted_range = (quotes[0].k, quotes[n - 1].k);
-    let (curve, spline_stage) = match spline {
+    let (curve, spline_stage, butterfly) = match spline {
         Some(r) => {
             let first = SmileCurve::SviSpline(SviSpline::assemble(params, r.spline.clone(), asymptotes, noisy));
-            let (curve, lambda) = arbitrage_free_smoothing(first, &r, asymptotes, noisy, quoted_range);
+            let (curve, lambda, butterfly) = arbitrage_free_smoothing(first, &r, asymptotes, noisy, quoted_range);
             let [_, _, weights] = r.data;
-            (curve, Some((weights, lambda)))
+            (curve, Some((weights, lambda)), Some(butterfly))
         }
-        None => (SmileCurve::Svi(params), None),
+        None => (SmileCurve::Svi(params), None, None),
     };
     let excluded: Vec<(usize, f64)> = (0..n)
         .filter(|i| kept.binary_search(i).is_err())
@@ -535,7 +536,16 @@ pub fn fit(
         svi: params,
         spline: spline_stage,
     };
-    Ok(FittedSmile { curve, rmse_vol: rmse, excluded, suspect, quoted_range, notes: Vec::new(), noise: Some(noise) })
+    Ok(FittedSmile {
+        curve,
+        rmse_vol: rmse,
+        excluded,
+        suspect,
+        quoted_range,
+        notes: Vec::new(),
+        noise: Some(noise),
+        butterfly,
+    })
 }
 
 #[cfg(test)]
