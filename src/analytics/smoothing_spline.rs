@@ -565,8 +565,9 @@ pub struct CrossValidation {
     system: System,
     /// `Q' y`.
     qty: Vec<f64>,
-    /// Scratch: `D`, `1/D`, the two bands of `L`, `gamma`, the inverse's three bands.
-    scratch: [Vec<[f64; LANES]>; 8],
+    /// Scratch: `1/D`, the two bands of `L`, `gamma` (`D` and the inverse's bands are
+    /// needed only two rows back, and are carried along instead).
+    scratch: [Vec<[f64; LANES]>; 4],
 }
 
 /// Values of `lambda` [`CrossValidation::scores`] scores at once.
@@ -610,22 +611,24 @@ impl CrossValidation {
         let m = self.qty.len();
         // Every scratch band holds row j at index j + PAD, with PAD zero rows on either
         // side, so that the recurrences need no tests at the ends.
-        let [dd, inverse_d, l1, l2, gamma, s0, s1, s2] = &mut self.scratch;
+        let [inverse_d, l1, l2, gamma] = &mut self.scratch;
         let [r0, r1] = &self.system.gram;
         let [p0, p1, p2] = &self.system.penalty;
         let zero = [0.0; LANES];
+        // D one and two rows back (zero before the first row).
+        let (mut d_1, mut d_2) = (zero, zero);
         for j in 0..m {
             let at = j + PAD;
-            let (d_1, l1_1, l2_1, d_2, l2_2) = (dd[at - 1], l1[at - 1], l2[at - 1], dd[at - 2], l2[at - 2]);
+            let (l1_1, l2_1, l2_2) = (l1[at - 1], l2[at - 1], l2[at - 2]);
             let dj = lanes(|l| r0[j] + lambdas[l] * p0[j] - l1_1[l] * l1_1[l] * d_1[l] - l2_2[l] * l2_2[l] * d_2[l]);
             if !dj.iter().all(|d| *d > 0.0 && d.is_finite()) {
                 return Err(SmoothingError::NotPositiveDefinite);
             }
             let inverse = lanes(|l| 1.0 / dj[l]);
-            dd[at] = dj;
             inverse_d[at] = inverse;
             l1[at] = lanes(|l| (r1[j] + lambdas[l] * p1[j] - l2_1[l] * l1_1[l] * d_1[l]) * inverse[l]);
             l2[at] = lanes(|l| lambdas[l] * p2[j] * inverse[l]);
+            (d_2, d_1) = (d_1, dj);
         }
         // L has no entries below its last rows (the bands of R and the penalty end
         // there; the first band's recurrence term does not).
@@ -649,14 +652,16 @@ impl CrossValidation {
             rss_over_lambda_sq = lanes(|l| rss_over_lambda_sq[l] + q_gamma[l] * q_gamma[l] * iw);
         }
         let mut trace = zero;
+        // The inverse's main band one and two rows on and its first band one row on
+        // (zero past the last row).
+        let (mut s11, mut s22, mut s12) = (zero, zero, zero);
         for j in (0..m).rev() {
             let at = j + PAD;
-            let (s11, s12, s22) = (s0[at + 1], s1[at + 1], s0[at + 2]);
             let (a1, a2, inverse) = (l1[at], l2[at], inverse_d[at]);
             let b2 = lanes(|l| -a1[l] * s12[l] - a2[l] * s22[l]);
             let b1 = lanes(|l| -a1[l] * s11[l] - a2[l] * s12[l]);
             let b0 = lanes(|l| inverse[l] - a1[l] * b1[l] - a2[l] * b2[l]);
-            (s0[at], s1[at], s2[at]) = (b0, b1, b2);
+            (s22, s11, s12) = (s11, b0, b1);
             trace = lanes(|l| trace[l] + b0[l] * p0[j] + 2.0 * (b1[l] * p1[j] + b2[l] * p2[j]));
         }
         let n = (m + 2) as f64;

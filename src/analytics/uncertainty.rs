@@ -357,11 +357,6 @@ pub fn wing_spread(levels: &[[f64; 3]]) -> [f64; 3] {
     })
 }
 
-/// Relative accuracy of the wing integrals behind the wing part: a tenth of the
-/// smallest spread worth reporting, a part in 1e4 of the level (rule of thumb, no
-/// source; the se is a first-order estimate to begin with).
-pub const WING_LEVEL_TOL: f64 = 1e-5;
-
 /// Standard errors of a fitted smile's three levels at expiry `tau` (years): `None`
 /// for a smile that records no [`QuoteNoise`] (the monotone cubic) or when a solve
 /// fails. The wing part is computed for a smile with a residual spline (the default),
@@ -390,7 +385,7 @@ pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
             let curves: Vec<SmileCurve> = std::iter::once(curve.clone())
                 .chain(spline.alternative_wings().into_iter().map(SmileCurve::SviSpline))
                 .collect();
-            wing_spread(&levels_beyond(&curves, edges, tau, WING_LEVEL_TOL))
+            wing_spread(&levels_beyond(&curves, edges, tau))
         }
         _ => [0.0; 3],
     };
