@@ -226,6 +226,24 @@ fn hat_diagonal(system: &System, factor: &Factor, lambda: f64) -> Vec<f64> {
     // (Q S Q')_ii over the columns j with a non-zero Q[i][j]: j = i - 2, i - 1, i.
     let mut hat_diagonal = vec![0.0; n];
     for (i, hat) in hat_diagonal.iter_mut().enumerate() {
+        if i >= 2 && i < m {
+            // All three columns exist: the general sum below written out, term by
+            // term in its order (the same number to the bit, without its branches).
+            let (c0, c1, c2) = (q(i - 2)[2], q(i - 1)[1], q(i)[0]);
+            let (a, b) = (i - 2, i - 1);
+            let mut quad = 0.0;
+            quad += c0 * c0 * s0[a];
+            quad += c0 * c1 * s1[a];
+            quad += c0 * c2 * s2[a];
+            quad += c1 * c0 * s1[a];
+            quad += c1 * c1 * s0[b];
+            quad += c1 * c2 * s1[b];
+            quad += c2 * c0 * s2[a];
+            quad += c2 * c1 * s1[b];
+            quad += c2 * c2 * s0[i];
+            *hat = 1.0 - lambda * quad * inverse_weight[i];
+            continue;
+        }
         let mut cols = [(0usize, 0.0f64); 3];
         let mut count = 0;
         for j in i.saturating_sub(2)..=i {
@@ -568,6 +586,9 @@ pub struct CrossValidation {
     /// Scratch: `1/D`, the two bands of `L`, `gamma` (`D` and the inverse's bands are
     /// needed only two rows back, and are carried along instead).
     scratch: [Vec<[f64; LANES]>; 4],
+    /// Row `i` of `Q` as `[Q[i][i-2], Q[i][i-1], Q[i][i]]`, zero where the column does
+    /// not exist, so that `(Q gamma)_i` is three products over the padded `gamma`.
+    q_rows: Vec<[f64; 3]>,
 }
 
 /// Values of `lambda` [`CrossValidation::scores`] scores at once.
@@ -584,7 +605,14 @@ impl CrossValidation {
         let system = System::new(x, weight);
         let qty = system.q_transpose_times(y);
         let scratch = std::array::from_fn(|_| vec![[0.0; LANES]; qty.len() + 2 * PAD]);
-        Ok(Self { system, qty, scratch })
+        let m = system.columns.len();
+        let q_rows = (0..m + 2)
+            .map(|i| {
+                let column = |j: usize, r: usize| if j < m { system.columns[j][r] } else { 0.0 };
+                [if i >= 2 { column(i - 2, 2) } else { 0.0 }, if i >= 1 { column(i - 1, 1) } else { 0.0 }, column(i, 0)]
+            })
+            .collect();
+        Ok(Self { system, qty, scratch, q_rows })
     }
 
     /// The generalised cross-validation score `n RSS / (n - trace H)^2` at `lambda`
@@ -642,13 +670,11 @@ impl CrossValidation {
             gamma[j] = lanes(|l| g[l] * inverse[l] - a1[l] * g1[l] - a2[l] * g2[l]);
         }
         // (Q gamma)_i over the rows i = 0 .. m+1: column j of Q touches rows j .. j+2.
+        // A missing column adds 0 * 0 (gamma's padding), which leaves the sum as it was.
         let mut rss_over_lambda_sq = zero;
-        for (i, iw) in self.system.inverse_weight.iter().enumerate() {
-            let mut q_gamma = zero;
-            for j in i.saturating_sub(2)..=i.min(m - 1) {
-                let (c, g) = (self.system.columns[j][i - j], gamma[j + PAD]);
-                q_gamma = lanes(|l| q_gamma[l] + c * g[l]);
-            }
+        for (i, (iw, q)) in self.system.inverse_weight.iter().zip(&self.q_rows).enumerate() {
+            let (g0, g1, g2) = (gamma[i], gamma[i + 1], gamma[i + 2]);
+            let q_gamma = lanes(|l| 0.0 + q[0] * g0[l] + q[1] * g1[l] + q[2] * g2[l]);
             rss_over_lambda_sq = lanes(|l| rss_over_lambda_sq[l] + q_gamma[l] * q_gamma[l] * iw);
         }
         let mut trace = zero;
