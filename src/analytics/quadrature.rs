@@ -92,8 +92,10 @@ struct Panel<const N: usize> {
     error: [f64; N],
 }
 
-/// Most nodes a rule may have (`2 H - 1`): the size of the node buffers.
-pub const MAX_PANEL_NODES: usize = 63;
+/// Most nodes a rule may have (`2 H - 1`): the size of the node buffers, which every
+/// panel zeroes. The largest rule in use is the 10/21-point pair; a larger one needs
+/// this raised.
+pub const MAX_PANEL_NODES: usize = 21;
 
 /// One panel `[lo, hi]` by the rule: Kronrod value and QUADPACK's error estimate.
 /// The integrand gets all the panel's nodes at once (centre first, then each pair
