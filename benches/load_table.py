@@ -1,5 +1,5 @@
 #!/usr/bin/env python3
-"""Loopback load table for the README: POST /v1/analyze, POST /v1/snapshots (SQLite and
+"""Loopback load table: POST /v1/analyze, POST /v1/snapshots (SQLite and
 PostgreSQL) and GET .../latest at 1, 16 and 64 concurrent clients, with throughput,
 p50/p99 latency, errors and the server's peak resident memory (VmHWM).
 
