@@ -305,61 +305,11 @@ impl Smoother {
     /// lane's arithmetic is that of [`Smoother::smooth`], to the bit. Rows of NaN when
     /// `rows` does not hold one row per knot.
     pub fn smooth_lanes<const L: usize>(&self, rows: &[[f64; L]]) -> Vec<[f64; L]> {
-        let system = &self.system;
-        let (l1, l2, inverse_d) = (&self.factor.l1, &self.factor.l2, &self.factor.inverse_d);
-        let m = system.columns.len();
-        if rows.len() != m + 2 {
+        if rows.len() != self.system.columns.len() + 2 {
             return vec![[f64::NAN; L]; rows.len()];
         }
-        let mut gamma: Vec<[f64; L]> = system
-            .columns
-            .iter()
-            .enumerate()
-            .map(|(j, q)| std::array::from_fn(|l| q[0] * rows[j][l] + q[1] * rows[j + 1][l] + q[2] * rows[j + 2][l]))
-            .collect();
-        for j in 0..m {
-            if j >= 1 {
-                let (previous, a) = (gamma[j - 1], l1[j - 1]);
-                for l in 0..L {
-                    gamma[j][l] -= a * previous[l];
-                }
-            }
-            if j >= 2 {
-                let (previous, a) = (gamma[j - 2], l2[j - 2]);
-                for l in 0..L {
-                    gamma[j][l] -= a * previous[l];
-                }
-            }
-        }
-        for (g, d) in gamma.iter_mut().zip(inverse_d) {
-            for v in g.iter_mut() {
-                *v *= d;
-            }
-        }
-        for j in (0..m).rev() {
-            if j + 1 < m {
-                let (next, a) = (gamma[j + 1], l1[j]);
-                for l in 0..L {
-                    gamma[j][l] -= a * next[l];
-                }
-            }
-            if j + 2 < m {
-                let (next, a) = (gamma[j + 2], l2[j]);
-                for l in 0..L {
-                    gamma[j][l] -= a * next[l];
-                }
-            }
-        }
-        let mut values = rows.to_vec();
-        for (j, q) in system.columns.iter().enumerate() {
-            for (r, qv) in q.iter().enumerate() {
-                let scale = self.lambda * qv;
-                for l in 0..L {
-                    values[j + r][l] -= scale * gamma[j][l] * system.inverse_weight[j + r];
-                }
-            }
-        }
-        values
+        let gamma = self.factor.solve_lanes(self.system.q_transpose_lanes(rows));
+        self.system.values_lanes(rows, self.lambda, &gamma)
     }
 }
 
@@ -421,15 +371,32 @@ impl System {
 
     /// `Q' y`.
     fn q_transpose_times(&self, y: &[f64]) -> Vec<f64> {
-        self.columns.iter().enumerate().map(|(j, q)| q[0] * y[j] + q[1] * y[j + 1] + q[2] * y[j + 2]).collect()
+        from_lanes(self.q_transpose_lanes(&to_lanes(y)))
+    }
+
+    /// `Q' y` for `L` data vectors given by knot (`y[i][l]`).
+    fn q_transpose_lanes<const L: usize>(&self, y: &[[f64; L]]) -> Vec<[f64; L]> {
+        self.columns
+            .iter()
+            .enumerate()
+            .map(|(j, q)| std::array::from_fn(|l| q[0] * y[j][l] + q[1] * y[j + 1][l] + q[2] * y[j + 2][l]))
+            .collect()
     }
 
     /// Fitted values `g = y - lambda W^-1 Q gamma` from the data and `gamma = B^-1 Q' y`.
     fn values(&self, y: &[f64], lambda: f64, gamma: &[f64]) -> Vec<f64> {
+        from_lanes(self.values_lanes(&to_lanes(y), lambda, &to_lanes(gamma)))
+    }
+
+    /// [`System::values`] for `L` data vectors given by knot.
+    fn values_lanes<const L: usize>(&self, y: &[[f64; L]], lambda: f64, gamma: &[[f64; L]]) -> Vec<[f64; L]> {
         let mut values = y.to_vec();
         for (j, q) in self.columns.iter().enumerate() {
             for (r, qv) in q.iter().enumerate() {
-                values[j + r] -= lambda * qv * gamma[j] * self.inverse_weight[j + r];
+                let scale = lambda * qv;
+                for l in 0..L {
+                    values[j + r][l] -= scale * gamma[j][l] * self.inverse_weight[j + r];
+                }
             }
         }
         values
@@ -482,29 +449,60 @@ impl Factor {
     }
 
     /// `B^-1 rhs`.
-    fn solve(&self, mut rhs: Vec<f64>) -> Vec<f64> {
+    fn solve(&self, rhs: Vec<f64>) -> Vec<f64> {
+        from_lanes(self.solve_lanes(to_lanes(&rhs)))
+    }
+
+    /// `B^-1 rhs` for `L` right-hand sides given by row (`rhs[j][l]`): each lane's
+    /// arithmetic is that of a single solve, and `L` chains of dependent
+    /// multiply-adds side by side take about the time of one.
+    fn solve_lanes<const L: usize>(&self, mut rhs: Vec<[f64; L]>) -> Vec<[f64; L]> {
         let m = rhs.len();
         for j in 0..m {
             if j >= 1 {
-                rhs[j] -= self.l1[j - 1] * rhs[j - 1];
+                let (previous, a) = (rhs[j - 1], self.l1[j - 1]);
+                for l in 0..L {
+                    rhs[j][l] -= a * previous[l];
+                }
             }
             if j >= 2 {
-                rhs[j] -= self.l2[j - 2] * rhs[j - 2];
+                let (previous, a) = (rhs[j - 2], self.l2[j - 2]);
+                for l in 0..L {
+                    rhs[j][l] -= a * previous[l];
+                }
             }
         }
         for (g, d) in rhs.iter_mut().zip(&self.inverse_d) {
-            *g *= d;
+            for v in g.iter_mut() {
+                *v *= d;
+            }
         }
         for j in (0..m).rev() {
             if j + 1 < m {
-                rhs[j] -= self.l1[j] * rhs[j + 1];
+                let (next, a) = (rhs[j + 1], self.l1[j]);
+                for l in 0..L {
+                    rhs[j][l] -= a * next[l];
+                }
             }
             if j + 2 < m {
-                rhs[j] -= self.l2[j] * rhs[j + 2];
+                let (next, a) = (rhs[j + 2], self.l2[j]);
+                for l in 0..L {
+                    rhs[j][l] -= a * next[l];
+                }
             }
         }
         rhs
     }
+}
+
+/// One data vector as one-lane rows, for the lane forms of the solves.
+fn to_lanes(v: &[f64]) -> Vec<[f64; 1]> {
+    v.iter().map(|x| [*x]).collect()
+}
+
+/// One-lane rows back to a vector.
+fn from_lanes(v: Vec<[f64; 1]>) -> Vec<f64> {
+    v.into_iter().map(|[x]| x).collect()
 }
 
 /// Decades of `lambda`, relative to its natural scale, searched by

@@ -85,33 +85,13 @@ pub fn integrand_sensitivity(k: f64, w: f64, tau: f64) -> [f64; 3] {
 /// share of log-moneyness (half the distance to each neighbour), and for the two
 /// edge quotes also the integral of the sensitivity over their wing (which moves
 /// with the edge value), integrated to ten ATM deviations beyond the edge.
-pub fn knot_sensitivities(knots: &[f64], w: impl Fn(f64) -> f64, tau: f64) -> Vec<[f64; 3]> {
-    knot_and_parameter_sensitivities(knots, None, w, tau).0
-}
-
-/// Sensitivity of each level to the SVI parameters through wings that follow the SVI
-/// base beyond `edges`: the integral over each wing of the level's sensitivity to
-/// total variance times the change of SVI's total variance relative to its edge value
-/// (the edge value itself is counted with the edge quote).
-pub fn wing_parameter_sensitivity(
-    svi: &SviParams,
-    edges: (f64, f64),
-    w: impl Fn(f64) -> f64,
-    tau: f64,
-) -> [[f64; 5]; 3] {
-    let mut out = [[0.0; 5]; 3];
-    let reach = wing_reach(&w);
-    for (edge, direction) in [(edges.0, -1.0), (edges.1, 1.0)] {
-        let part = wing_integrals(edge, edge + direction * reach, &w, tau, Some(svi)).1;
-        add_parameter_part(&mut out, &part);
-    }
-    out
-}
-
-/// [`knot_sensitivities`] and, when the wings follow the SVI base `svi` beyond the
-/// outermost knots, [`wing_parameter_sensitivity`] (zero otherwise), from one walk
-/// over each wing: both integrate the same sensitivity at the same points, so the
-/// curve and the Black vega are evaluated once per point instead of six times.
+///
+/// With `svi`, when the wings beyond the outermost knots follow that SVI base, also
+/// each level's sensitivity to the SVI parameters through those wings: the integral
+/// over each wing of the level's sensitivity to total variance times the change of
+/// SVI's total variance relative to its edge value (the edge value itself is counted
+/// with the edge quote); zero without. Both integrate the same sensitivity at the
+/// same points, so one walk over each wing serves both.
 pub fn knot_and_parameter_sensitivities(
     knots: &[f64],
     svi: Option<&SviParams>,
@@ -137,7 +117,11 @@ pub fn knot_and_parameter_sensitivities(
         for l in 0..3 {
             out[j][l] += wing[l];
         }
-        add_parameter_part(&mut parameters, &part);
+        for l in 0..3 {
+            for a in 0..5 {
+                parameters[l][a] += part[l][a];
+            }
+        }
     }
     (out, parameters)
 }
@@ -145,14 +129,6 @@ pub fn knot_and_parameter_sensitivities(
 /// How far beyond an edge the sensitivities are integrated: ten ATM deviations.
 fn wing_reach(w: &impl Fn(f64) -> f64) -> f64 {
     10.0 * w(0.0).max(1e-8).sqrt()
-}
-
-fn add_parameter_part(total: &mut [[f64; 5]; 3], part: &[[f64; 5]; 3]) {
-    for l in 0..3 {
-        for a in 0..5 {
-            total[l][a] += part[l][a];
-        }
-    }
 }
 
 /// Over the wing from `edge` to `end`: the integral of each level's sensitivity to
@@ -310,7 +286,7 @@ fn hat_transpose_times(smoother: &smoothing_spline::Smoother, weights: &[f64], u
 /// `A' W A` with a ridge of 1e-12 of its trace (a parameter the quotes do not pin,
 /// such as `m` on a flat smile, then contributes nothing instead of failing), as its
 /// inverse.
-fn normal_matrix(jacobian: &[[f64; 5]], weights: &[f64]) -> Option<nalgebra::Matrix5<f64>> {
+pub(crate) fn normal_matrix(jacobian: &[[f64; 5]], weights: &[f64]) -> Option<nalgebra::Matrix5<f64>> {
     let mut normal = nalgebra::Matrix5::<f64>::zeros();
     for (row, w) in jacobian.iter().zip(weights) {
         for a in 0..5 {
@@ -365,19 +341,12 @@ pub fn wing_spread(levels: &[[f64; 3]]) -> [f64; 3] {
 pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
     let noise = smile.noise.as_ref()?;
     let curve = &smile.curve;
-    let total_variance = |k: f64| curve.total_variance(k);
-    let (c, parameters) = match curve {
-        SmileCurve::SviSpline(spline) if spline.wings_from_svi => {
-            let edges = spline.edges();
-            if noise.k.first() == Some(&edges[0]) && noise.k.last() == Some(&edges[1]) {
-                knot_and_parameter_sensitivities(&noise.k, Some(&spline.svi), total_variance, tau)
-            } else {
-                let c = knot_sensitivities(&noise.k, total_variance, tau);
-                (c, wing_parameter_sensitivity(&spline.svi, (edges[0], edges[1]), total_variance, tau))
-            }
-        }
-        _ => (knot_sensitivities(&noise.k, total_variance, tau), [[0.0; 5]; 3]),
+    // The wings begin at the outermost kept quotes, the first and last of `noise.k`.
+    let wings_follow = match curve {
+        SmileCurve::SviSpline(spline) if spline.wings_from_svi => Some(&spline.svi),
+        _ => None,
     };
+    let (c, parameters) = knot_and_parameter_sensitivities(&noise.k, wings_follow, |k| curve.total_variance(k), tau);
     let quote_noise = quote_noise_errors(noise, &c, &parameters)?;
     let wings = match curve {
         SmileCurve::SviSpline(spline) => {
@@ -428,21 +397,64 @@ mod tests {
 
     #[test]
     fn one_walk_gives_both_sensitivities_to_the_bit() {
-        // Identity: the fused walk sums the same terms in the same order as the two
-        // separate integrals.
+        // Identity: the one walk sums the same terms in the same order as Simpson's
+        // rule on each integral alone (written out here: the knot's own wing, then
+        // one parameter at a time).
         let svi = SviParams { a: 0.01, b: 0.1, rho: -0.4, m: 0.02, sigma: 0.2 };
         let knots: Vec<f64> = (0..9).map(|i| -0.3 + 0.07 * i as f64).collect();
         let w = |k: f64| svi.total_variance(k) * 1.01;
-        let (c, parameters) = knot_and_parameter_sensitivities(&knots, Some(&svi), w, 0.7);
-        let alone = knot_sensitivities(&knots, w, 0.7);
-        let parameters_alone = wing_parameter_sensitivity(&svi, (knots[0], knots[8]), w, 0.7);
-        for (a, b) in c.iter().flatten().zip(alone.iter().flatten()) {
+        let tau = 0.7;
+        let simpson = |f: &dyn Fn(f64) -> [f64; 3], a: f64, b: f64| -> [f64; 3] {
+            let (lo, hi) = if a < b { (a, b) } else { (b, a) };
+            let h = (hi - lo) / 64.0;
+            let mut sum = [0.0; 3];
+            for i in 0..=64 {
+                let weight = if i == 0 || i == 64 {
+                    1.0
+                } else if i % 2 == 1 {
+                    4.0
+                } else {
+                    2.0
+                };
+                let v = f(lo + h * i as f64);
+                for l in 0..3 {
+                    sum[l] += weight * v[l];
+                }
+            }
+            sum.map(|s| s * h / 3.0)
+        };
+        let (c, parameters) = knot_and_parameter_sensitivities(&knots, Some(&svi), w, tau);
+        let (c_alone, none) = knot_and_parameter_sensitivities(&knots, None, w, tau);
+        let reach = 10.0 * w(0.0).sqrt();
+        let mut want = [[0.0; 5]; 3];
+        for (edge, direction) in [(knots[0], -1.0), (knots[8], 1.0)] {
+            let at_edge = svi.total_variance_gradient(edge);
+            for a in 0..5 {
+                let f = |k: f64| {
+                    let s = integrand_sensitivity(k, w(k), tau);
+                    let g = svi.total_variance_gradient(k)[a] - at_edge[a];
+                    [s[0] * g, s[1] * g, s[2] * g]
+                };
+                let part = simpson(&f, edge, edge + direction * reach);
+                for l in 0..3 {
+                    want[l][a] += part[l];
+                }
+            }
+        }
+        let edge_wing = simpson(&|k| integrand_sensitivity(k, w(k), tau), knots[0], knots[0] - reach);
+        let inner =
+            integrand_sensitivity(knots[0], w(knots[0]), tau).map(|x| x * (0.5 * (knots[0] + knots[1]) - knots[0]));
+        for l in 0..3 {
+            assert_eq!(c[0][l].to_bits(), (inner[l] + edge_wing[l]).to_bits());
+        }
+        for (a, b) in c.iter().flatten().zip(c_alone.iter().flatten()) {
             assert_eq!(a.to_bits(), b.to_bits());
         }
-        for (a, b) in parameters.iter().flatten().zip(parameters_alone.iter().flatten()) {
+        for (a, b) in parameters.iter().flatten().zip(want.iter().flatten()) {
             assert_eq!(a.to_bits(), b.to_bits());
         }
         assert!(parameters.iter().flatten().any(|v| v.abs() > 0.0));
+        assert!(none.iter().flatten().all(|v| v.abs() < 1e-300));
     }
 
     #[test]

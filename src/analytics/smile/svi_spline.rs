@@ -293,22 +293,25 @@ fn vol_of(w: f64, tau: f64) -> f64 {
 /// The linearised leave-one-out miss of quote `i` against the SVI fit `params` (vol):
 /// its miss divided by `1 - h_i`, with `h_i = w_i a_i' (A' W A)^-1 a_i` the leverage of
 /// the quote in the weighted least squares of total variance linearised at `params`
-/// (`A` the gradient in the five raw parameters, `W` the spread weights times
-/// `robustness`). Infinite when the leverage reaches one or the normal matrix is
-/// singular (the quote alone sets a parameter).
-fn leave_one_out_miss(quotes: &[SmileQuote], tau: f64, params: &SviParams, robustness: &[f64], i: usize) -> f64 {
-    let (spread, _) = svi::spread_weights(quotes, tau);
-    let mut normal = nalgebra::Matrix5::<f64>::zeros();
-    for (j, q) in quotes.iter().enumerate() {
-        let weight = spread[j] * robustness[j];
-        if weight > 0.0 {
-            let a = nalgebra::Vector5::from(params.total_variance_gradient(q.k));
-            normal += weight * a * a.transpose();
+/// (`A` the gradient in the five raw parameters, `W` the spread weights `spread`
+/// times `robustness`; the normal matrix is the standard errors' own,
+/// [`crate::analytics::uncertainty::normal_matrix`]). Infinite when the leverage
+/// reaches one or the normal matrix is singular (the quote alone sets a parameter).
+fn leave_one_out_miss(
+    quotes: &[SmileQuote],
+    tau: f64,
+    params: &SviParams,
+    spread: &[f64],
+    robustness: &[f64],
+    i: usize,
+) -> f64 {
+    let jacobian: Vec<[f64; 5]> = quotes.iter().map(|q| params.total_variance_gradient(q.k)).collect();
+    let weights: Vec<f64> = spread.iter().zip(robustness).map(|(s, r)| s * r).collect();
+    let leverage = match crate::analytics::uncertainty::normal_matrix(&jacobian, &weights) {
+        Some(inverse) => {
+            let a = nalgebra::Vector5::from(jacobian[i]);
+            weights[i] * (a.transpose() * inverse * a)[(0, 0)]
         }
-    }
-    let a = nalgebra::Vector5::from(params.total_variance_gradient(quotes[i].k));
-    let leverage = match normal.try_inverse() {
-        Some(inverse) => spread[i] * robustness[i] * (a.transpose() * inverse * a)[(0, 0)],
         None => f64::INFINITY,
     };
     let miss = quotes[i].vol - vol_of(params.total_variance(quotes[i].k), tau);
@@ -442,6 +445,9 @@ pub fn fit(
     // (the spline's smoothing does not depend on a common scale).
     let noise: Vec<f64> =
         quotes.iter().map(|q| if with_spreads { q.half_spread.unwrap_or(1.0) } else { 1.0 }).collect();
+    // The SVI stage's spread weights: the leave-one-out screen and the standard
+    // errors' record use them as the stage does.
+    let (spread_weights, _) = svi::spread_weights(quotes, tau);
     let mut robustness = vec![1.0; n];
     let mut params = svi::fit_reweighted(quotes, tau, &robustness, prior, warm);
     if with_spreads {
@@ -475,7 +481,7 @@ pub fn fit(
             let i = if side == 0 { kept[0] } else { kept[kept.len() - 1] };
             // The refit is needed only where the linearised leave-one-out miss comes
             // anywhere near the cut.
-            let predicted = leave_one_out_miss(quotes, tau, &params, &robustness, i);
+            let predicted = leave_one_out_miss(quotes, tau, &params, &spread_weights, &robustness, i);
             if !(predicted.abs() > LEAVE_ONE_OUT_SCREEN * ROBUST_CUT_HALF_SPREADS * noise[i]) {
                 continue;
             }
@@ -568,7 +574,6 @@ pub fn fit(
         }
         other => other,
     };
-    let (spread_weights, _) = svi::spread_weights(quotes, tau);
     let noise = QuoteNoise {
         k: kept.iter().map(|&i| quotes[i].k).collect(),
         residual: kept
@@ -666,7 +671,8 @@ mod tests {
             .collect();
         let params = svi::fit_reweighted(&clean, tau, &[1.0; 30], SlopePrior::default(), None);
         for i in [0, 29] {
-            let predicted = leave_one_out_miss(&clean, tau, &params, &[1.0; 30], i);
+            let (spread, _) = svi::spread_weights(&clean, tau);
+            let predicted = leave_one_out_miss(&clean, tau, &params, &spread, &[1.0; 30], i);
             assert!(predicted.abs() < LEAVE_ONE_OUT_SCREEN * ROBUST_CUT_HALF_SPREADS * 0.004, "edge {i}: {predicted}");
         }
         assert!(fit(&clean, tau, None, SlopePrior::default()).expect("fit").excluded.is_empty());
