@@ -2,7 +2,7 @@
 //! (tests/fixtures/black/generate.py, 60 digits).
 
 use logstrip::analytics::black::{mirrored_call, otm_price};
-use logstrip::analytics::special::erfcx::erfcx;
+use logstrip::analytics::numerics::erfcx::erfcx;
 use logstrip::analytics::tolerances::{BLACK_PRICE_REL_TOL_PER_CONDITION, ERFCX_REL_TOL};
 
 #[derive(serde::Deserialize)]

@@ -8,7 +8,7 @@
 
 use logstrip::analytics::analysis::{analyze, Analysis};
 use logstrip::analytics::models::leverage::{LeverageCurve, LeverageParams};
-use logstrip::analytics::quadrature::{integrate, QuadratureTolerance};
+use logstrip::analytics::numerics::quadrature::{integrate, QuadratureTolerance};
 use logstrip::analytics::special::mittag_leffler::mittag_leffler;
 use serde_json::Value;
 

@@ -128,7 +128,7 @@ fn shared_contour_matches_mpmath_on_the_negative_axis() {
     // wherever the fixture holds both E_{a,b} and E_{a,b-1} at the same z: within
     // 1e-11 relative of the derivative's own scale (E_{a,b-1} + (b-1) E_{a,b}) / (a|z|),
     // since the identity's difference loses what the two terms cancel.
-    use logstrip::analytics::special::mittag_leffler_contour::NegativeAxisContour;
+    use logstrip::analytics::special::mittag_leffler::shared_contour::NegativeAxisContour;
     let (_, values) = load_fixture();
     let (mut checked, mut derivatives) = (0, 0);
     let mut failures = Vec::new();

@@ -1,5 +1,5 @@
 #!/usr/bin/env python3
-"""Writes src/analytics/special/erfcx_table.rs: polynomial pieces of the scaled
+"""Writes src/analytics/numerics/erfcx_table.rs: polynomial pieces of the scaled
 complementary error function erfcx(x) = exp(x^2) erfc(x) for x >= 0.
 
 Run from the repository root:  python3 tools/erfcx_table.py
@@ -105,7 +105,7 @@ def main():
     out.append("")
     out.append("/// Monomial coefficients in `t = 128 / x^2 - 1` of `sqrt(pi) x erfcx(x)` for `x >= 8`.")
     out.append("pub(super) const TAIL: [f64; %d] = [" % (TAIL_DEGREE + 1) + ", ".join(repr(c) for c in tail) + "];")
-    with open("src/analytics/special/erfcx_table.rs", "w") as f:
+    with open("src/analytics/numerics/erfcx_table.rs", "w") as f:
         f.write("\n".join(out) + "\n")
 
 

@@ -1,6 +1,6 @@
 #!/usr/bin/env python3
-"""Writes src/analytics/special/exp_table.rs: the table 2^(j/64), j = 0..63, that the
-exponential of src/analytics/special/exp.rs scales by, and the ln 2 / 64 split it
+"""Writes src/analytics/numerics/exp_table.rs: the table 2^(j/64), j = 0..63, that the
+exponential of src/analytics/numerics/exp.rs scales by, and the ln 2 / 64 split it
 reduces its argument with.
 
 Run from the repository root:  python3 tools/exp_table.py
@@ -68,9 +68,9 @@ def main():
         f"pub const SIZE_OVER_LN2: f64 = {repr(float(SIZE / mp.log(2)))};",
         "",
     ]
-    with open("src/analytics/special/exp_table.rs", "w") as out:
+    with open("src/analytics/numerics/exp_table.rs", "w") as out:
         out.write("\n".join(lines))
-    print(f"wrote src/analytics/special/exp_table.rs: {SIZE} entries, hi {hi!r}, lo {lo!r}")
+    print(f"wrote src/analytics/numerics/exp_table.rs: {SIZE} entries, hi {hi!r}, lo {lo!r}")
 
 
 if __name__ == "__main__":

@@ -1,5 +1,5 @@
 #!/usr/bin/env python3
-"""Writes src/analytics/kronrod_table.rs: Gauss–Kronrod pairs (the (2n+1)-point
+"""Writes src/analytics/numerics/kronrod_table.rs: Gauss–Kronrod pairs (the (2n+1)-point
 Kronrod extension of the n-point Gauss–Legendre rule on [-1, 1]) for n = 10.
 
 Run from the repository root:  python3 tools/kronrod_table.py
@@ -17,7 +17,7 @@ Method, in mpmath at 90 digits:
 4. Checks before writing: every node is real and inside (-1, 1); the Kronrod rule
    integrates x^m exactly (to 1e-60) for every m <= 3n + 1, the Gauss rule for
    m <= 2n - 1; and for n = 7 the script reproduces the 15-point pair that QUADPACK
-   tabulates (qk15, the rule already in src/analytics/quadrature.rs) to an ulp.
+   tabulates (qk15, the rule already in src/analytics/numerics/quadrature.rs) to an ulp.
 """
 import sys
 
@@ -130,9 +130,9 @@ def main():
         out += [
             "};",
         ]
-    with open("src/analytics/kronrod_table.rs", "w") as handle:
+    with open("src/analytics/numerics/kronrod_table.rs", "w") as handle:
         handle.write("\n".join(out) + "\n")
-    print("wrote src/analytics/kronrod_table.rs")
+    print("wrote src/analytics/numerics/kronrod_table.rs")
 
 
 if __name__ == "__main__":

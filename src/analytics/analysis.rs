@@ -302,13 +302,13 @@ fn leverage_uncertainty(slices: &[Slice], out: &[SliceAnalysis]) -> Option<Vec<f
     let se: Option<Vec<f64>> =
         out.iter().map(|s| s.level_errors.map(|e| e.total()[2]).filter(|x| x.is_finite() && *x > 0.0)).collect();
     if let Some(se) = se {
-        let floor = LEVERAGE_SE_FLOOR_SHARE * super::stats::median(&se)?;
+        let floor = LEVERAGE_SE_FLOOR_SHARE * super::numerics::stats::median(&se)?;
         return Some(se.iter().map(|x| x.max(floor)).collect());
     }
     out.iter()
         .map(|s| {
             let spreads = || slices[s.input_index].quotes().iter().filter_map(|q| q.half_spread).filter(|h| *h > 0.0);
-            let h = super::stats::median_of(spreads())?;
+            let h = super::numerics::stats::median_of(spreads())?;
             let vs = s.replication.levels.variance.max(1e-12);
             Some(2.0 * vs.sqrt() * h * (3.0 / spreads().count() as f64).sqrt())
         })

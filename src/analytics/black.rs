@@ -5,8 +5,8 @@
 //! `c(k) = N(d1) - e^k N(d2)` and `p(k) = e^k N(-d2) - N(-d1)`,
 //! `d1 = -k/sqrt(w) + sqrt(w)/2`, `d2 = d1 - sqrt(w)`.
 
-use super::special::erfcx::erfcx_nonnegative;
-use super::special::exp::exp;
+use super::numerics::erfcx::erfcx_nonnegative;
+use super::numerics::exp::exp;
 use super::tolerances::IMPLIED_VOL_REL_TOL;
 use std::f64::consts::{FRAC_1_SQRT_2, PI};
 
@@ -41,7 +41,7 @@ pub fn otm_price(k: f64, w: f64) -> f64 {
 /// `b = sqrt(w / 8)`, `d1 = -sqrt(2) (a - b)` and `d2 = -sqrt(2) (a + b)`, and
 /// `e^k exp(-(a + b)^2) = exp(-(a - b)^2)`, so
 /// `c = (erfc(a - b) - exp(-(a - b)^2) erfcx(a + b)) / 2` with the scaled
-/// complementary error function `erfcx` ([`crate::analytics::special::erfcx`]).
+/// complementary error function `erfcx` ([`crate::analytics::numerics::erfcx`]).
 /// Accuracy against mpmath: tests/reference_identities.rs.
 pub fn mirrored_call(k: f64, w: f64) -> f64 {
     if w.is_nan() || w <= 0.0 {

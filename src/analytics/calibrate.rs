@@ -3,7 +3,7 @@
 //! implies once a vol-of-vol is supplied.
 //!
 //! The free parameters are fitted in their natural units by Levenberg–Marquardt with
-//! the bounds handled directly (an active set, [`super::levenberg`]), running in
+//! the bounds handled directly (an active set, [`super::numerics::levenberg`]), running in
 //! argmin's executor and started from the best point of a small grid. MATH.md
 //! section 7 suggests mapping the bounds to the real line; we do not: the demo
 //! snapshot's mean reversion sits on its zero bound, and through a logistic map the
@@ -13,9 +13,9 @@
 //! argmin's Nelder–Mead takes over, on the cost at the point clamped into the box.
 //! The outcome is data: status, iterations, evaluations, residual and active bounds.
 
-use super::levenberg::LevenbergMarquardt;
 use super::models::leverage::{LeverageCurve, LeverageParams, ModelError};
-use super::quadrature::{integrate, QuadratureTolerance};
+use super::numerics::levenberg::LevenbergMarquardt;
+use super::numerics::quadrature::{integrate, QuadratureTolerance};
 use super::special::mittag_leffler::MittagLefflerSeries;
 use super::tolerances::{
     ACTIVE_BOUND_FRACTION, CALIBRATION_COST_REL_TOL, CALIBRATION_MAX_EVALUATIONS, CALIBRATION_MAX_ITERATIONS,
@@ -474,7 +474,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         target.uncertainty.as_ref().filter(|u| u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0));
     let sigma: Vec<f64> = match uncertainty {
         Some(u) => {
-            let med = super::stats::median(u).unwrap_or(1.0);
+            let med = super::numerics::stats::median(u).unwrap_or(1.0);
             u.iter().map(|x| x / med * rms).collect()
         }
         None => vec![rms; n],
@@ -568,7 +568,7 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let mut weights = vec![1.0; n];
     // One standard error in residual units (residuals are in units of `rms` scaled by
     // each expiry's uncertainty over their median).
-    let sigma_unit = uncertainty.map_or(0.0, |u| super::stats::median(u).unwrap_or(0.0) / rms);
+    let sigma_unit = uncertainty.map_or(0.0, |u| super::numerics::stats::median(u).unwrap_or(0.0) / rms);
     for _ in 0..ROBUST_FIT_ROUNDS {
         if run.status != FitStatus::Converged {
             break;
@@ -692,9 +692,9 @@ const HUBER_K: f64 = 1.345;
 /// the levels carry standard errors: a miss within `k` standard errors is never
 /// down-weighted, however well the rest fits).
 fn huber_weights(residual: &[f64], floor: f64) -> Vec<f64> {
-    let centre = super::stats::median(residual).unwrap_or(0.0);
+    let centre = super::numerics::stats::median(residual).unwrap_or(0.0);
     let deviations: Vec<f64> = residual.iter().map(|r| (r - centre).abs()).collect();
-    let spread = 1.4826 * super::stats::median(&deviations).unwrap_or(0.0);
+    let spread = 1.4826 * super::numerics::stats::median(&deviations).unwrap_or(0.0);
     let cut = HUBER_K * spread.max(floor);
     residual.iter().map(|r| if cut > 0.0 && r.abs() > cut { cut / r.abs() } else { 1.0 }).collect()
 }

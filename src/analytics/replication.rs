@@ -8,12 +8,12 @@
 //! `LS = (2/tau) Int otm(k) (1 - e^-k) dk`, so that it does not cancel.
 
 use super::black::{mirrored_call, mirrored_calls};
-use super::kronrod_table::GAUSS_KRONROD_21;
-use super::quadrature::{
+use super::numerics::exp::exp;
+use super::numerics::kronrod_table::GAUSS_KRONROD_21;
+use super::numerics::quadrature::{
     gauss_batches_with, integrate_batches_with, KronrodRule, QuadratureTolerance, GAUSS_KRONROD_15, MAX_PANEL_NODES,
 };
 use super::smile::SmileShape;
-use super::special::exp::exp;
 use super::tolerances::{MAX_ABS_LOG_MONEYNESS, OTM_PRICE_CUTOFF, REPLICATION_ABS_TOL, REPLICATION_MAX_EVALUATIONS};
 
 /// Annualised variance, gamma and leverage swap levels (decimal variance).
@@ -419,7 +419,7 @@ mod tests {
         // swap: both sides are held to 1e-13 and the part beyond the walk's end is below
         // 3e-15 of it (see WING_END_BISECTIONS).
         use crate::analytics::black::otm_price;
-        use crate::analytics::quadrature::integrate;
+        use crate::analytics::numerics::quadrature::integrate;
         let cases = [
             (SviParams { a: 1.7e-4, b: 0.0124, rho: -0.743, m: 0.0146, sigma: 0.0134 }, 0.0192, (-0.08, 0.06)),
             (SviParams { a: 0.01, b: 0.08, rho: -0.5, m: 0.05, sigma: 0.15 }, 0.5, (-0.6, 0.6)),

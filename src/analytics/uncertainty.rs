@@ -29,10 +29,10 @@
 //! resembles is not covered.
 
 use super::black::otm_price_vega;
+use super::numerics::smoothing_spline;
 use super::replication::levels_beyond;
 use super::smile::svi::SviParams;
 use super::smile::{FittedSmile, SmileCurve};
-use super::smoothing_spline;
 
 /// What the smile fit knows about its quotes' noise and its own linear response to
 /// them (kept quotes only, in increasing log-moneyness).

@@ -439,7 +439,7 @@ pub const MONOTONE_MAX_NOISE_VOL: f64 = 5e-4;
 
 /// The quotes' noise in vol, estimated from a cubic smoothing spline of total variance
 /// with its smoothing chosen by generalised cross-validation
-/// ([`crate::analytics::smoothing_spline::SmoothingFit::noise_scale`]), in vol units
+/// ([`crate::analytics::numerics::smoothing_spline::SmoothingFit::noise_scale`]), in vol units
 /// through the weights `(2 vol tau)^-2`. `None` with fewer than five quotes, or when
 /// the spline interpolates them (clean quotes).
 pub fn quote_noise_vol(quotes: &[SmileQuote], tau: f64) -> Option<f64> {
@@ -449,7 +449,7 @@ pub fn quote_noise_vol(quotes: &[SmileQuote], tau: f64) -> Option<f64> {
     let x: Vec<f64> = quotes.iter().map(|q| q.k).collect();
     let y: Vec<f64> = quotes.iter().map(|q| q.vol * q.vol * tau).collect();
     let weight: Vec<f64> = quotes.iter().map(|q| (2.0 * q.vol * tau).powi(-2)).collect();
-    crate::analytics::smoothing_spline::fit_by_cross_validation(&x, &y, &weight).ok()?.noise_scale()
+    crate::analytics::numerics::smoothing_spline::fit_by_cross_validation(&x, &y, &weight).ok()?.noise_scale()
 }
 
 /// Weighted least-squares coefficients `[c0, c1, c2]` of `y ~ c0 + c1 x + c2 x^2`.

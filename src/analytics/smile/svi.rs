@@ -8,7 +8,7 @@
 //! small grid.
 
 use super::{rmse_vol, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
-use crate::analytics::stats::median_of;
+use crate::analytics::numerics::stats::median_of;
 use crate::analytics::tolerances::{
     DEFAULT_HALF_SPREAD_VOL, MAX_WING_SLOPE, OUTLIER_FLOOR_VOL, OUTLIER_SIGMAS, SVI_OUTER_COST_REL_TOL,
     SVI_OUTER_MAX_DAMPING_TRIES, SVI_OUTER_MAX_ITERATIONS, SVI_OUTER_PREDICTED_GAIN_TOL, SVI_OUTER_STEP_TOL,

@@ -5,7 +5,7 @@
 //!   bending the curve; with bid/ask it is refitted with robust weights (Tukey's
 //!   bisquare on the miss in half spreads), so that stale quotes lose their pull.
 //! - A weighted cubic smoothing spline of the SVI residuals in total variance
-//!   ([`crate::analytics::smoothing_spline`]), its smoothing chosen by generalised
+//!   ([`crate::analytics::numerics::smoothing_spline`]), its smoothing chosen by generalised
 //!   cross-validation, takes up what SVI cannot bend to: on clean quotes it goes to
 //!   interpolation and the smile is exact at the quotes; on noisy quotes it smooths.
 //!   Its leave-one-out residuals (from the hat-matrix diagonal) re-check every quote
@@ -21,7 +21,7 @@
 
 use super::svi::{self, SlopePrior, SviParams, WarmStart};
 use super::{rmse_vol, ButterflyViolation, FittedSmile, SmileCurve, SmileError, SmilePoint, SmileQuote};
-use crate::analytics::smoothing_spline::{self, NaturalCubic};
+use crate::analytics::numerics::smoothing_spline::{self, NaturalCubic};
 use crate::analytics::tolerances::{MAX_WING_SLOPE, SPLINE_REPLICATION_REL_TOL};
 use crate::analytics::uncertainty::QuoteNoise;
 
@@ -536,7 +536,7 @@ pub fn fit(
     // noise) the edge curvature moved the long expiries' wing share between 11% and
     // 15% from one expiry to the next, and forward vols by up to 3 vol points.
     let typical_noise_scale =
-        if with_spreads { crate::analytics::stats::median_of(noise.iter().copied()) } else { Some(1.0) };
+        if with_spreads { crate::analytics::numerics::stats::median_of(noise.iter().copied()) } else { Some(1.0) };
     let noisy = match (spline.as_ref().and_then(|r| r.noise_estimate), typical_noise_scale) {
         (Some(estimate), Some(scale)) => estimate * scale > super::MONOTONE_MAX_NOISE_VOL,
         _ => false,

@@ -11,6 +11,7 @@
 //! mpmath (the generator's check, 12,000 points): 2.6e-16.
 
 use super::erfcx_table::{PIECES, TAIL};
+use super::polynomial::horner;
 
 /// `1/sqrt(pi)`.
 const FRAC_1_SQRT_PI: f64 = 0.564_189_583_547_756_3;
@@ -39,13 +40,4 @@ pub fn erfcx(x: f64) -> f64 {
     } else {
         erfcx_nonnegative(x)
     }
-}
-
-#[inline]
-fn horner<const N: usize>(coefficients: &[f64; N], t: f64) -> f64 {
-    let mut acc = coefficients[N - 1];
-    for c in coefficients[..N - 1].iter().rev() {
-        acc = c + t * acc;
-    }
-    acc
 }

@@ -3,7 +3,7 @@
 //!
 //! Garrappa's optimal parabolic contour (Garrappa 2015, SIAM J. Numer. Anal. 53(3),
 //! "Numerical evaluation of two-parameter Mittag-Leffler functions"; the method of
-//! [`super::mittag_leffler`] outside the series radius) writes
+//! [`super`] outside the series radius) writes
 //!
 //! `E_{a,b}(z) = (1 / 2 pi i) int_C e^s s^(a-b) / (s^a - z) ds`,
 //!
@@ -19,9 +19,10 @@
 //!
 //! Each comes with the size of its integrand's sum, so that a caller can check the
 //! rounding the sum suffered (`GARRAPPA_EPS` times that size, relative to the result)
-//! and fall back to [`super::mittag_leffler::MittagLefflerSeries`] where it is too large.
+//! and fall back to [`super::MittagLefflerSeries`] where it is too large.
 
-use super::mittag_leffler::{contour_choice, ContourParams, GARRAPPA_EPS, GARRAPPA_MAX_NODES};
+use super::contour::{contour_choice, ContourParams};
+use super::{GARRAPPA_EPS, GARRAPPA_MAX_NODES};
 use num_complex::Complex64;
 use std::f64::consts::PI;
 
