@@ -18,6 +18,7 @@ pub mod kronrod_table;
 pub mod levenberg;
 pub mod polynomial;
 pub mod quadrature;
+pub mod small_solve;
 pub mod smoothing_spline;
 pub mod stats;
 pub mod tanh_sinh;

@@ -470,7 +470,7 @@ pub(crate) fn least_squares3(rows: impl Iterator<Item = ([f64; 3], f64, f64)>) -
             v[r] += w * phi[r] * y;
         }
     }
-    let c = svi::solve_small(3, m, v)?;
+    let c = crate::analytics::numerics::small_solve::solve_small(3, m, v)?;
     c.iter().all(|v| v.is_finite()).then_some(c)
 }
 
