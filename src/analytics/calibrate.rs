@@ -392,72 +392,20 @@ impl CostFunction for LeverageProblem<'_> {
 /// and a message.
 pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let started = Instant::now();
-    let model = spec.model.unwrap_or(ModelKind::RoughHeston);
-    let hurst_fixed = match model {
-        ModelKind::Heston => Some(0.5),
-        ModelKind::RoughHeston => spec.hurst,
-    };
-    let fixed_values = [hurst_fixed, spec.rho_nu, spec.mean_reversion];
-    let free: Vec<ParamName> =
-        ParamName::ALL.iter().zip(fixed_values).filter(|(_, v)| v.is_none()).map(|(n, _)| *n).collect();
-    let fixed: Vec<ParamName> = ParamName::ALL
-        .iter()
-        .zip([spec.hurst, spec.rho_nu, spec.mean_reversion])
-        .filter(|(n, v)| v.is_some() && !(model == ModelKind::Heston && **n == ParamName::Hurst))
-        .map(|(n, _)| *n)
-        .collect();
-    let nu = spec.nu.filter(|nu| nu.is_finite() && *nu > 0.0);
-    let mut limits = ParamName::ALL.map(|name| name.bounds());
-    if let Some(nu) = nu {
-        let (lo, hi) = limits[ParamName::RhoNu.index()];
-        limits[ParamName::RhoNu.index()] = (lo.max(-nu), hi.min(nu));
-    }
-    let layout = Layout { fixed: fixed_values, free: free.clone(), limits };
-    let failed = |message: String, params: LeverageParams| FitOutcome {
-        model,
-        params,
-        fixed: fixed.clone(),
-        status: FitStatus::Failed,
-        message: Some(message),
-        iterations: 0,
-        evaluations: 0,
-        leverage_rmse: f64::NAN,
-        model_leverage_swap: Vec::new(),
-        active_bounds: Vec::new(),
-        selected_model: model,
-        down_weighted: Vec::new(),
-        elapsed_us: started.elapsed().as_micros() as u64,
-        rho: None,
-        convexity: None,
-    };
+    let setup = FitSetup::new(spec);
     let nan_params = LeverageParams {
-        hurst: hurst_fixed.unwrap_or(f64::NAN),
+        hurst: setup.fixed_values[0].unwrap_or(f64::NAN),
         rho_nu: spec.rho_nu.unwrap_or(f64::NAN),
         mean_reversion: spec.mean_reversion.unwrap_or(f64::NAN),
     };
-    // Fixed parameters must lie in the same bounds as free ones: the model is only
-    // evaluated (and its cost only bounded) there. The input documents check this
-    // first; a library caller gets a failed fit naming the parameter. (Fuzzing reached
-    // the model with a fixed mean reversion of 442, `tests/regressions.rs`.)
-    for (name, value) in ParamName::ALL.iter().zip([spec.hurst, spec.rho_nu, spec.mean_reversion]) {
-        if let (Some(v), false) = (value, model == ModelKind::Heston && *name == ParamName::Hurst) {
-            let (lo, hi) = name.bounds();
-            if !(v >= lo && v <= hi) {
-                return failed(format!("fixed {} must lie in [{lo}, {hi}], got {v}", name.as_str()), nan_params);
-            }
-        }
-    }
-    if let (Some(nu), Some(c)) = (nu, spec.rho_nu) {
-        if c.abs() > nu {
-            return failed(
-                format!("fixed rho_nu {c} with nu {nu} gives a correlation {} outside [-1, 1]", c / nu),
-                nan_params,
-            );
-        }
+    let failed = |message: String, params: LeverageParams| setup.failed(message, params, started);
+    if let Err(message) = setup.check_fixed(spec) {
+        return failed(message, nan_params);
     }
     let n = target.taus.len();
-    if n < free.len().max(1) {
-        return failed(format!("{} free parameter(s) need at least as many expiries, got {n}", free.len()), nan_params);
+    if n < setup.layout.free.len().max(1) {
+        let free = setup.layout.free.len();
+        return failed(format!("{free} free parameter(s) need at least as many expiries, got {n}"), nan_params);
     }
     let xi = match forward_variances(&target.taus, &target.variance_swap) {
         Some(xi) => xi,
@@ -468,18 +416,8 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         Err(e) => return failed(e.to_string(), nan_params),
     };
     let market_total: Vec<f64> = target.taus.iter().zip(&target.leverage_swap).map(|(t, l)| t * l).collect();
-    let rms = (target.leverage_swap.iter().map(|l| l * l).sum::<f64>() / n as f64).sqrt().max(1e-6);
-    // Uncertainties are used only when every expiry has a finite positive one.
-    let uncertainty =
-        target.uncertainty.as_ref().filter(|u| u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0));
-    let sigma: Vec<f64> = match uncertainty {
-        Some(u) => {
-            let med = super::numerics::stats::median(u).unwrap_or(1.0);
-            u.iter().map(|x| x / med * rms).collect()
-        }
-        None => vec![rms; n],
-    };
-    let scale: Vec<f64> = target.taus.iter().zip(&sigma).map(|(t, s)| 1.0 / (t * s)).collect();
+    let residual_scales = ResidualScales::new(target);
+    let scale = &residual_scales.scale;
     let evaluations = Cell::new(0u64);
     let budget = Budget {
         max_evaluations: spec.max_evaluations.unwrap_or(CALIBRATION_MAX_EVALUATIONS),
@@ -490,20 +428,252 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let problem = LeverageProblem {
         curve: &curve,
         market_total: &market_total,
-        scale: &scale,
-        layout: &layout,
+        scale,
+        layout: &setup.layout,
         evaluations: &evaluations,
         for_start: false,
         budget: Some(&budget),
     };
+    let (start, grid_evaluations) = grid_start(target, &market_total, &problem);
+    let Some(start) = start else {
+        return failed("the model could not be evaluated at any starting point".into(), nan_params);
+    };
+    let x0 = setup.layout.to_free(&start);
+    let (run, iterations, weights) = robust_rounds(&problem, &budget, &x0, &residual_scales);
+    let SolveRun { x: x_best, status, message, residual: residual_best, .. } = run;
+    let params = setup.layout.to_params(&x_best);
+    // The solver's residuals at its result give the model values without another
+    // evaluation (after a final step taken on the linear model there is none cached).
+    let model_total = match residual_best {
+        Some(r) if r.len() == n => r.iter().zip(&market_total).zip(scale).map(|((r, t), s)| t + r / s).collect(),
+        _ => match curve.total_leverage(&params) {
+            Ok(m) => m,
+            Err(e) => return failed(e.to_string(), params),
+        },
+    };
+    let model_leverage_swap: Vec<f64> = model_total.iter().zip(&target.taus).map(|(l, t)| l / t).collect();
+    let leverage_rmse =
+        (model_leverage_swap.iter().zip(&target.leverage_swap).map(|(m, l)| (m - l).powi(2)).sum::<f64>() / n as f64)
+            .sqrt();
+    let ending = setup.bound_report(&params, status, message);
+    let (rho, convexity) = match setup.nu {
+        Some(nu) => (Some(params.rho_nu / nu), convexity(&curve, &target.variance_swap, &params, nu)),
+        None => (None, None),
+    };
+    FitOutcome {
+        model: setup.model,
+        params,
+        fixed: setup.fixed.clone(),
+        status: ending.status,
+        message: ending.message,
+        iterations,
+        evaluations: evaluations.get() + grid_evaluations,
+        leverage_rmse,
+        model_leverage_swap,
+        active_bounds: ending.active_bounds,
+        selected_model: if ending.heston_selected { ModelKind::Heston } else { setup.model },
+        down_weighted: residual_scales.down_weighted(&target.taus, &weights),
+        elapsed_us: started.elapsed().as_micros() as u64,
+        rho,
+        convexity,
+    }
+}
 
-    // Start: best point of a small grid over the free parameters, scored on at most
-    // GRID_EXPIRIES expiries spread over the curve (the start only needs to be in
-    // the right basin; the solver then uses every expiry). One mean reversion only:
-    // with the bounds handled in the solver, a second value (1.0) changed no outcome on
-    // 48 synthetic curves (H 0.05-0.45, rho_nu -0.2 to -3, mean reversion 0-10; all
-    // recovered to 1e-6) and saved 2% of the iterations (549 against 559), for twice
-    // the grid.
+/// What a fit specification fixes before any data is seen: the model, which
+/// parameters are free, their bounds, and `nu` when given.
+struct FitSetup {
+    model: ModelKind,
+    /// Value per parameter when held (the Hurst exponent 1/2 of classical Heston too).
+    fixed_values: [Option<f64>; 3],
+    /// The parameters the caller fixed (reported as such; not Heston's Hurst exponent).
+    fixed: Vec<ParamName>,
+    nu: Option<f64>,
+    layout: Layout,
+}
+
+impl FitSetup {
+    fn new(spec: &FitSpec) -> Self {
+        let model = spec.model.unwrap_or(ModelKind::RoughHeston);
+        let hurst_fixed = match model {
+            ModelKind::Heston => Some(0.5),
+            ModelKind::RoughHeston => spec.hurst,
+        };
+        let fixed_values = [hurst_fixed, spec.rho_nu, spec.mean_reversion];
+        let free: Vec<ParamName> =
+            ParamName::ALL.iter().zip(fixed_values).filter(|(_, v)| v.is_none()).map(|(n, _)| *n).collect();
+        let fixed: Vec<ParamName> = ParamName::ALL
+            .iter()
+            .zip([spec.hurst, spec.rho_nu, spec.mean_reversion])
+            .filter(|(n, v)| v.is_some() && !(model == ModelKind::Heston && **n == ParamName::Hurst))
+            .map(|(n, _)| *n)
+            .collect();
+        let nu = spec.nu.filter(|nu| nu.is_finite() && *nu > 0.0);
+        let mut limits = ParamName::ALL.map(|name| name.bounds());
+        if let Some(nu) = nu {
+            let (lo, hi) = limits[ParamName::RhoNu.index()];
+            limits[ParamName::RhoNu.index()] = (lo.max(-nu), hi.min(nu));
+        }
+        Self { model, fixed_values, fixed, nu, layout: Layout { fixed: fixed_values, free, limits } }
+    }
+
+    /// Fixed parameters must lie in the same bounds as free ones: the model is only
+    /// evaluated (and its cost only bounded) there. The input documents check this
+    /// first; a library caller gets a failed fit naming the parameter. (Fuzzing reached
+    /// the model with a fixed mean reversion of 442, `tests/regressions.rs`.)
+    fn check_fixed(&self, spec: &FitSpec) -> Result<(), String> {
+        for (name, value) in ParamName::ALL.iter().zip([spec.hurst, spec.rho_nu, spec.mean_reversion]) {
+            if let (Some(v), false) = (value, self.model == ModelKind::Heston && *name == ParamName::Hurst) {
+                let (lo, hi) = name.bounds();
+                if !(v >= lo && v <= hi) {
+                    return Err(format!("fixed {} must lie in [{lo}, {hi}], got {v}", name.as_str()));
+                }
+            }
+        }
+        if let (Some(nu), Some(c)) = (self.nu, spec.rho_nu) {
+            if c.abs() > nu {
+                return Err(format!("fixed rho_nu {c} with nu {nu} gives a correlation {} outside [-1, 1]", c / nu));
+            }
+        }
+        Ok(())
+    }
+
+    /// The outcome of a fit that could not run.
+    fn failed(&self, message: String, params: LeverageParams, started: Instant) -> FitOutcome {
+        FitOutcome {
+            model: self.model,
+            params,
+            fixed: self.fixed.clone(),
+            status: FitStatus::Failed,
+            message: Some(message),
+            iterations: 0,
+            evaluations: 0,
+            leverage_rmse: f64::NAN,
+            model_leverage_swap: Vec::new(),
+            active_bounds: Vec::new(),
+            selected_model: self.model,
+            down_weighted: Vec::new(),
+            elapsed_us: started.elapsed().as_micros() as u64,
+            rho: None,
+            convexity: None,
+        }
+    }
+
+    /// Which free parameters ended on a bound, and the status and message that say so:
+    /// a converged fit with a parameter held by its bound is [`FitStatus::AtBound`],
+    /// except the Hurst exponent at 1/2, which selects the classical Heston model.
+    fn bound_report(&self, params: &LeverageParams, status: FitStatus, message: Option<String>) -> BoundReport {
+        let (layout, free) = (&self.layout, &self.layout.free);
+        let (mut status, mut message) = (status, message);
+        let x = [params.hurst, params.rho_nu, params.mean_reversion];
+        let at = |name: ParamName| {
+            let (lo, hi) = layout.limit(name);
+            let margin = ACTIVE_BOUND_FRACTION * (hi - lo);
+            let v = x[name.index()];
+            (v <= lo + margin, v >= hi - margin)
+        };
+        let active_bounds: Vec<ParamName> = free.iter().filter(|name| at(**name) != (false, false)).cloned().collect();
+        // H = 1/2 is the classical Heston model: a model choice, not a parameter held back.
+        let heston_selected =
+            self.model == ModelKind::RoughHeston && free.contains(&ParamName::Hurst) && at(ParamName::Hurst).1;
+        let held: Vec<ParamName> =
+            active_bounds.iter().filter(|name| !(heston_selected && **name == ParamName::Hurst)).cloned().collect();
+        if status == FitStatus::Converged && !held.is_empty() {
+            status = FitStatus::AtBound;
+            let names: Vec<String> = held
+                .iter()
+                .map(|name| {
+                    let (lo, hi) = layout.limit(*name);
+                    let bound = if at(*name).0 { lo } else { hi };
+                    let why =
+                        if *name == ParamName::RhoNu && self.nu.is_some() { " (|rho| = 1 at this nu)" } else { "" };
+                    format!("{} at {bound}{why}", name.as_str())
+                })
+                .collect();
+            message = Some(format!("converged with {} on its bound", names.join(" and ")));
+        }
+        if heston_selected {
+            let note = "the Hurst exponent reached 1/2: the classical Heston model describes these leverage swaps best";
+            message = Some(match message {
+                Some(m) => format!("{m}; {note}"),
+                None => note.to_string(),
+            });
+        }
+        BoundReport { status, message, active_bounds, heston_selected }
+    }
+}
+
+/// How a fit ended with respect to its bounds (see [`FitSetup::bound_report`]).
+struct BoundReport {
+    status: FitStatus,
+    message: Option<String>,
+    active_bounds: Vec<ParamName>,
+    heston_selected: bool,
+}
+
+/// Each expiry's residual scale `1 / (T_i sigma_i)`, with `sigma_i` the expiry's
+/// standard error relative to the median one, times the levels' root mean square.
+struct ResidualScales {
+    rms: f64,
+    /// `sigma_i` per expiry.
+    sigma: Vec<f64>,
+    scale: Vec<f64>,
+    /// One standard error in residual units (0 without standard errors).
+    sigma_unit: f64,
+}
+
+impl ResidualScales {
+    fn new(target: &LeverageTarget) -> Self {
+        let n = target.taus.len();
+        let rms = (target.leverage_swap.iter().map(|l| l * l).sum::<f64>() / n as f64).sqrt().max(1e-6);
+        // Uncertainties are used only when every expiry has a finite positive one.
+        let uncertainty =
+            target.uncertainty.as_ref().filter(|u| u.len() == n && u.iter().all(|x| x.is_finite() && *x > 0.0));
+        let sigma: Vec<f64> = match uncertainty {
+            Some(u) => {
+                let med = super::numerics::stats::median(u).unwrap_or(1.0);
+                u.iter().map(|x| x / med * rms).collect()
+            }
+            None => vec![rms; n],
+        };
+        let scale: Vec<f64> = target.taus.iter().zip(&sigma).map(|(t, s)| 1.0 / (t * s)).collect();
+        // One standard error in residual units (residuals are in units of `rms` scaled by
+        // each expiry's uncertainty over their median).
+        let sigma_unit = uncertainty.map_or(0.0, |u| super::numerics::stats::median(u).unwrap_or(0.0) / rms);
+        Self { rms, sigma, scale, sigma_unit }
+    }
+
+    /// Expiries that count for much less than a typical one: by the robust loss's
+    /// weight or by a large standard error.
+    fn down_weighted(&self, taus: &[f64], weights: &[f64]) -> Vec<DownWeighted> {
+        (0..taus.len())
+            .filter_map(|i| {
+                let from_se = (self.rms / self.sigma[i]).powi(2).min(1.0);
+                let reason = if weights[i] < ROBUST_REPORT_WEIGHT {
+                    DownWeightReason::RobustLoss
+                } else if from_se < LARGE_SE_WEIGHT {
+                    DownWeightReason::LargeStandardError
+                } else {
+                    return None;
+                };
+                Some(DownWeighted { tau: taus[i], weight: weights[i] * from_se, reason })
+            })
+            .collect()
+    }
+}
+
+/// The best point of a small grid over the free parameters, scored on at most
+/// `GRID_EXPIRIES` expiries spread over the curve (the start only needs to be in
+/// the right basin; the solver then uses every expiry), and the evaluations it took.
+/// One mean reversion only: with the bounds handled in the solver, a second value
+/// (1.0) changed no outcome on 48 synthetic curves (H 0.05-0.45, rho_nu -0.2 to -3,
+/// mean reversion 0-10; all recovered to 1e-6) and saved 2% of the iterations (549
+/// against 559), for twice the grid.
+fn grid_start(
+    target: &LeverageTarget,
+    market_total: &[f64],
+    problem: &LeverageProblem<'_>,
+) -> (Option<LeverageParams>, u64) {
+    let (layout, scale, n) = (problem.layout, problem.scale, target.taus.len());
     let picks: Vec<usize> = if n <= GRID_EXPIRIES {
         (0..n).collect()
     } else {
@@ -522,12 +692,12 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             curve: c,
             market_total: &sub_market,
             scale: &sub_scale,
-            layout: &layout,
+            layout,
             evaluations: &sub_evaluations,
             for_start: true,
             budget: None,
         },
-        None => LeverageProblem { for_start: true, budget: None, ..problem },
+        None => LeverageProblem { for_start: true, budget: None, ..*problem },
     };
     let grid = |name: ParamName, fixed: Option<f64>| -> Vec<f64> {
         match fixed {
@@ -543,9 +713,9 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
         }
     };
     let mut best: Option<(f64, LeverageParams)> = None;
-    for h in grid(ParamName::Hurst, fixed_values[0]) {
-        for c in grid(ParamName::RhoNu, fixed_values[1]) {
-            for l in grid(ParamName::MeanReversion, fixed_values[2]) {
+    for h in grid(ParamName::Hurst, layout.fixed[0]) {
+        for c in grid(ParamName::RhoNu, layout.fixed[1]) {
+            for l in grid(ParamName::MeanReversion, layout.fixed[2]) {
                 let p = LeverageParams { hurst: h, rho_nu: c, mean_reversion: l };
                 if let Ok(r) = grid_problem.residuals(&layout.to_free(&p)) {
                     let cost: f64 = r.iter().map(|x| x * x).sum();
@@ -556,123 +726,44 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
             }
         }
     }
-    let Some((_, start)) = best else {
-        return failed("the model could not be evaluated at any starting point".into(), nan_params);
-    };
-    let x0 = layout.to_free(&start);
+    (best.map(|(_, p)| p), sub_evaluations.get())
+}
 
-    // The fit proper, then rounds of Huber reweighting (robust loss by iteratively
-    // reweighted least squares), each started from the last point.
-    let mut run = solve(&problem, &x0);
+/// The fit proper from `x0`, then rounds of Huber reweighting (robust loss by
+/// iteratively reweighted least squares), each started from the last point. Returns
+/// the last run, the iterations of all runs and the final weights.
+fn robust_rounds(
+    problem: &LeverageProblem<'_>,
+    budget: &Budget,
+    x0: &[f64],
+    scales: &ResidualScales,
+) -> (SolveRun, u64, Vec<f64>) {
+    let n = problem.market_total.len();
+    let mut run = solve(problem, x0);
     let mut iterations = run.iterations;
     let mut weights = vec![1.0; n];
-    // One standard error in residual units (residuals are in units of `rms` scaled by
-    // each expiry's uncertainty over their median).
-    let sigma_unit = uncertainty.map_or(0.0, |u| super::numerics::stats::median(u).unwrap_or(0.0) / rms);
     for _ in 0..ROBUST_FIT_ROUNDS {
         if run.status != FitStatus::Converged {
             break;
         }
-        let params = layout.to_params(&run.x);
-        let Ok(model_total) = curve.total_leverage(&params) else { break };
+        let params = problem.layout.to_params(&run.x);
+        let Ok(model_total) = problem.curve.total_leverage(&params) else { break };
         let residual: Vec<f64> =
-            model_total.iter().zip(&market_total).zip(&scale).map(|((m, t), s)| (m - t) * s).collect();
-        let next = huber_weights(&residual, sigma_unit);
+            model_total.iter().zip(problem.market_total).zip(&scales.scale).map(|((m, t), s)| (m - t) * s).collect();
+        let next = huber_weights(&residual, scales.sigma_unit);
         if next.iter().zip(&weights).all(|(a, b)| (a - b).abs() < ROBUST_FIT_SETTLED) {
             break;
         }
         weights = next;
-        let robust_scale: Vec<f64> = scale.iter().zip(&weights).map(|(s, w)| s * w.sqrt()).collect();
+        let robust_scale: Vec<f64> = scales.scale.iter().zip(&weights).map(|(s, w)| s * w.sqrt()).collect();
         // The best point of a round is judged by that round's weights.
         budget.best.replace(None);
-        let robust = LeverageProblem { scale: &robust_scale, ..problem };
+        let robust = LeverageProblem { scale: &robust_scale, ..*problem };
         let again = solve(&robust, &run.x);
         iterations += again.iterations;
         run = SolveRun { residual: None, ..again };
     }
-    let SolveRun { x: x_best, status, message, residual: residual_best, .. } = run;
-    let mut status = status;
-    let mut message = message;
-    let params = layout.to_params(&x_best);
-    // The solver's residuals at its result give the model values without another
-    // evaluation (after a final step taken on the linear model there is none cached).
-    let model_total = match residual_best {
-        Some(r) if r.len() == n => r.iter().zip(&market_total).zip(&scale).map(|((r, t), s)| t + r / s).collect(),
-        _ => match curve.total_leverage(&params) {
-            Ok(m) => m,
-            Err(e) => return failed(e.to_string(), params),
-        },
-    };
-    let model_leverage_swap: Vec<f64> = model_total.iter().zip(&target.taus).map(|(l, t)| l / t).collect();
-    let leverage_rmse =
-        (model_leverage_swap.iter().zip(&target.leverage_swap).map(|(m, l)| (m - l).powi(2)).sum::<f64>() / n as f64)
-            .sqrt();
-    let x = [params.hurst, params.rho_nu, params.mean_reversion];
-    let at = |name: ParamName| {
-        let (lo, hi) = layout.limit(name);
-        let margin = ACTIVE_BOUND_FRACTION * (hi - lo);
-        let v = x[name.index()];
-        (v <= lo + margin, v >= hi - margin)
-    };
-    let active_bounds: Vec<ParamName> = free.iter().filter(|name| at(**name) != (false, false)).cloned().collect();
-    // H = 1/2 is the classical Heston model: a model choice, not a parameter held back.
-    let heston_selected = model == ModelKind::RoughHeston && free.contains(&ParamName::Hurst) && at(ParamName::Hurst).1;
-    let held: Vec<ParamName> =
-        active_bounds.iter().filter(|name| !(heston_selected && **name == ParamName::Hurst)).cloned().collect();
-    if status == FitStatus::Converged && !held.is_empty() {
-        status = FitStatus::AtBound;
-        let names: Vec<String> = held
-            .iter()
-            .map(|name| {
-                let (lo, hi) = layout.limit(*name);
-                let bound = if at(*name).0 { lo } else { hi };
-                let why = if *name == ParamName::RhoNu && nu.is_some() { " (|rho| = 1 at this nu)" } else { "" };
-                format!("{} at {bound}{why}", name.as_str())
-            })
-            .collect();
-        message = Some(format!("converged with {} on its bound", names.join(" and ")));
-    }
-    if heston_selected {
-        let note = "the Hurst exponent reached 1/2: the classical Heston model describes these leverage swaps best";
-        message = Some(match message {
-            Some(m) => format!("{m}; {note}"),
-            None => note.to_string(),
-        });
-    }
-    let down_weighted = (0..n)
-        .filter_map(|i| {
-            let from_se = (rms / sigma[i]).powi(2).min(1.0);
-            let reason = if weights[i] < ROBUST_REPORT_WEIGHT {
-                DownWeightReason::RobustLoss
-            } else if from_se < LARGE_SE_WEIGHT {
-                DownWeightReason::LargeStandardError
-            } else {
-                return None;
-            };
-            Some(DownWeighted { tau: target.taus[i], weight: weights[i] * from_se, reason })
-        })
-        .collect();
-    let (rho, convexity) = match nu {
-        Some(nu) => (Some(params.rho_nu / nu), convexity(&curve, &target.variance_swap, &params, nu)),
-        None => (None, None),
-    };
-    FitOutcome {
-        model,
-        params,
-        fixed,
-        status,
-        message,
-        iterations,
-        evaluations: evaluations.get() + sub_evaluations.get(),
-        leverage_rmse,
-        model_leverage_swap,
-        active_bounds,
-        selected_model: if heston_selected { ModelKind::Heston } else { model },
-        down_weighted,
-        elapsed_us: started.elapsed().as_micros() as u64,
-        rho,
-        convexity,
-    }
+    (run, iterations, weights)
 }
 
 /// Rounds of Huber reweighting after the first fit (two settle the weights on the

@@ -431,23 +431,40 @@ impl LeverageCurve {
         out: &mut PhiValues,
     ) -> Result<(), ModelError> {
         let key = (alpha.to_bits(), mu.to_bits(), accuracy);
-        let negative = mu > 0.0;
-        let m = self.gaps.len();
-        let mut cache = self.phi_cache.borrow_mut();
         if out.key != Some(key) {
             out.key = None;
-            out.t_a.clear();
-            out.z.clear();
-            out.t_a.extend(self.ln_gaps.iter().map(|l| exp(alpha * l)));
-            out.z.extend(out.t_a.iter().map(|p| -mu * p));
-            let z_max = out.z.iter().fold(0.0_f64, |acc, zz| acc.max(zz.abs()));
-            if !z_max.is_finite() {
-                return Err(ModelError::BadParams(format!(
-                    "mean reversion minus rho_nu {mu} too large for the expiries"
-                )));
-            }
+            self.phi_values(alpha, mu, accuracy, out)?;
+            out.key = Some(key);
+        }
+        if !with_derivatives {
+            return Ok(());
+        }
+        let z_max = out.z.iter().fold(0.0_f64, |acc, zz| acc.max(zz.abs()));
+        let radius = self.series_derivatives(alpha, mu > 0.0, z_max, out);
+        if z_max <= radius {
+            return Ok(());
+        }
+        self.derivatives_beyond(alpha, mu, radius, out)
+    }
+
+    /// `Phi/c` on every gap (`out.t_a`, `out.z`, `out.e`, `out.value`): the series inside
+    /// its radius, beyond it a Chebyshev interpolant of the shared contour (many gaps), the
+    /// contour per gap, or the single-point evaluator.
+    fn phi_values(&self, alpha: f64, mu: f64, accuracy: Accuracy, out: &mut PhiValues) -> Result<(), ModelError> {
+        let negative = mu > 0.0;
+        let m = self.gaps.len();
+        out.t_a.clear();
+        out.z.clear();
+        out.t_a.extend(self.ln_gaps.iter().map(|l| exp(alpha * l)));
+        out.z.extend(out.t_a.iter().map(|p| -mu * p));
+        let z_max = out.z.iter().fold(0.0_f64, |acc, zz| acc.max(zz.abs()));
+        if !z_max.is_finite() {
+            return Err(ModelError::BadParams(format!("mean reversion minus rho_nu {mu} too large for the expiries")));
+        }
+        let radius = {
+            let mut cache = self.phi_cache.borrow_mut();
             let series = Self::phi_series(&mut cache, alpha);
-            let radius = match series.plan_value(z_max, negative, accuracy) {
+            match series.plan_value(z_max, negative, accuracy) {
                 Some((r, n, tol)) => {
                     horner_many(&series.coeffs[..n], tol, &out.z, &mut out.e);
                     r
@@ -457,77 +474,85 @@ impl LeverageCurve {
                     out.e.resize(m, 0.0);
                     -1.0
                 }
-            };
-            out.chebyshev = None;
-            if z_max > radius {
-                let mut rest = Vec::new();
-                self.with_contour(alpha, |contour| {
-                    let beyond = out.z.iter().filter(|zz| zz.abs() > radius).count();
-                    let x_lo = out.z.iter().map(|zz| -zz).filter(|x| *x > radius).fold(f64::INFINITY, f64::min);
-                    out.chebyshev = contour
-                        .filter(|_| negative && beyond >= CHEBYSHEV_MIN_GAPS)
-                        .and_then(|c| NegativeAxisChebyshev::new(c, x_lo, z_max, CONTOUR_REL_ACCEPT));
-                    if let Some(cheb) = &out.chebyshev {
-                        let (gaps, xs): (Vec<usize>, Vec<f64>) = out
-                            .z
-                            .iter()
-                            .enumerate()
-                            .filter(|(_, zz)| zz.abs() > radius)
-                            .map(|(g, zz)| (g, -zz))
-                            .unzip();
-                        let mut values = Vec::with_capacity(xs.len());
-                        cheb.values(&xs, &mut values);
-                        for (g, v) in gaps.into_iter().zip(values) {
-                            out.e[g] = v;
-                        }
-                        return;
-                    }
-                    for (g, (e, &zz)) in out.e.iter_mut().zip(&out.z).enumerate() {
-                        if zz.abs() > radius {
-                            match contour.and_then(|c| c.value(zz)).filter(|v| v.1 <= CONTOUR_REL_ACCEPT) {
-                                Some((value, _)) => *e = value,
-                                None => rest.push(g),
-                            }
-                        }
-                    }
-                });
-                if !rest.is_empty() {
-                    self.with_evaluator(alpha, |ml| {
-                        for &g in &rest {
-                            out.e[g] = ml.eval(out.z[g]);
-                        }
-                    })?;
-                }
-            }
-            out.value.clear();
-            out.value.extend(self.gaps.iter().zip(&out.t_a).zip(&out.e).map(|((t, p), e)| t * p * e));
-            out.key = Some(key);
-        }
-        if !with_derivatives {
-            return Ok(());
-        }
-        let z_max = out.z.iter().fold(0.0_f64, |acc, zz| acc.max(zz.abs()));
-        let series = Self::phi_series(&mut cache, alpha);
-        let radius = match series.plan_derivatives(z_max, negative) {
-            Some((r, (n_deriv, tol_deriv), (n_psi, tol_psi))) => {
-                horner_many2(
-                    (&series.dcoeffs[..n_deriv], tol_deriv),
-                    (&series.psi_coeffs[..n_psi], tol_psi),
-                    &out.z,
-                    &mut out.d_mu,
-                    &mut out.d_alpha,
-                );
-                r
-            }
-            None => {
-                out.d_mu.clear();
-                out.d_mu.resize(m, 0.0);
-                out.d_alpha.clear();
-                out.d_alpha.resize(m, 0.0);
-                -1.0
             }
         };
-        drop(cache);
+        out.chebyshev = None;
+        if z_max > radius {
+            let rest = self.values_beyond(alpha, negative, radius, z_max, out);
+            if !rest.is_empty() {
+                self.with_evaluator(alpha, |ml| {
+                    for &g in &rest {
+                        out.e[g] = ml.eval(out.z[g]);
+                    }
+                })?;
+            }
+        }
+        out.value.clear();
+        out.value.extend(self.gaps.iter().zip(&out.t_a).zip(&out.e).map(|((t, p), e)| t * p * e));
+        Ok(())
+    }
+
+    /// `E` on the gaps beyond the series radius from the shared contour (through a
+    /// Chebyshev interpolant when at least [`CHEBYSHEV_MIN_GAPS`] of them are on the
+    /// negative axis); returns the gaps the contour could not take.
+    fn values_beyond(&self, alpha: f64, negative: bool, radius: f64, z_max: f64, out: &mut PhiValues) -> Vec<usize> {
+        let mut rest = Vec::new();
+        self.with_contour(alpha, |contour| {
+            let beyond = out.z.iter().filter(|zz| zz.abs() > radius).count();
+            let x_lo = out.z.iter().map(|zz| -zz).filter(|x| *x > radius).fold(f64::INFINITY, f64::min);
+            out.chebyshev = contour
+                .filter(|_| negative && beyond >= CHEBYSHEV_MIN_GAPS)
+                .and_then(|c| NegativeAxisChebyshev::new(c, x_lo, z_max, CONTOUR_REL_ACCEPT));
+            if let Some(cheb) = &out.chebyshev {
+                let (gaps, xs): (Vec<usize>, Vec<f64>) =
+                    out.z.iter().enumerate().filter(|(_, zz)| zz.abs() > radius).map(|(g, zz)| (g, -zz)).unzip();
+                let mut values = Vec::with_capacity(xs.len());
+                cheb.values(&xs, &mut values);
+                for (g, v) in gaps.into_iter().zip(values) {
+                    out.e[g] = v;
+                }
+                return;
+            }
+            for (g, (e, &zz)) in out.e.iter_mut().zip(&out.z).enumerate() {
+                if zz.abs() > radius {
+                    match contour.and_then(|c| c.value(zz)).filter(|v| v.1 <= CONTOUR_REL_ACCEPT) {
+                        Some((value, _)) => *e = value,
+                        None => rest.push(g),
+                    }
+                }
+            }
+        });
+        rest
+    }
+
+    /// Both derivatives of `Phi/c` on the gaps inside the derivative series' radius
+    /// (`E'` and `S2` summed together, then turned into the derivatives of `Phi/c`);
+    /// returns that radius (-1 when the series is not used at all).
+    fn series_derivatives(&self, alpha: f64, negative: bool, z_max: f64, out: &mut PhiValues) -> f64 {
+        let m = self.gaps.len();
+        let radius = {
+            let mut cache = self.phi_cache.borrow_mut();
+            let series = Self::phi_series(&mut cache, alpha);
+            match series.plan_derivatives(z_max, negative) {
+                Some((r, (n_deriv, tol_deriv), (n_psi, tol_psi))) => {
+                    horner_many2(
+                        (&series.dcoeffs[..n_deriv], tol_deriv),
+                        (&series.psi_coeffs[..n_psi], tol_psi),
+                        &out.z,
+                        &mut out.d_mu,
+                        &mut out.d_alpha,
+                    );
+                    r
+                }
+                None => {
+                    out.d_mu.clear();
+                    out.d_mu.resize(m, 0.0);
+                    out.d_alpha.clear();
+                    out.d_alpha.resize(m, 0.0);
+                    -1.0
+                }
+            }
+        };
         // Turn E' and S2 into the derivatives of Phi/c.
         for g in 0..m {
             let (t, p, zz, e) = (self.gaps[g], out.t_a[g], out.z[g], out.e[g]);
@@ -536,11 +561,14 @@ impl LeverageCurve {
             out.d_mu[g] = -scale * p * de;
             out.d_alpha[g] = scale * (self.ln_gaps[g] * (e + zz * de) - out.d_alpha[g]);
         }
-        if z_max <= radius {
-            return Ok(());
-        }
-        // Beyond the series radius: both derivatives from the shared contour, where its
-        // value was taken (the same nodes, so the same acceptance).
+        radius
+    }
+
+    /// Both derivatives beyond the series radius: from the shared contour, where its
+    /// value was taken (the same nodes, so the same acceptance), else from the
+    /// single-point evaluator with a backward difference in `a`.
+    fn derivatives_beyond(&self, alpha: f64, mu: f64, radius: f64, out: &mut PhiValues) -> Result<(), ModelError> {
+        let m = self.gaps.len();
         let mut rest = Vec::new();
         let cheb = out.chebyshev.take();
         let mut interpolated = vec![false; m];

@@ -12,6 +12,7 @@
 
 pub mod monotone;
 pub mod svi;
+mod svi_quasi_explicit;
 pub mod svi_spline;
 
 use crate::analytics::tolerances;
