@@ -122,6 +122,20 @@ pub enum AnalysisError {
 /// # Errors
 /// [`AnalysisError`] for duplicate expiries or a smile that cannot be fitted.
 pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, AnalysisError> {
+    let order = expiry_order(slices)?;
+    let inputs: Vec<(&[SmileQuote], f64)> = order.iter().map(|&i| (slices[i].quotes(), slices[i].tau())).collect();
+    let smiles = fit_smiles(&inputs, options.smile)
+        .map_err(|(position, source)| AnalysisError::Smile { index: order[position], source })?;
+    let mut out: Vec<SliceAnalysis> =
+        order.iter().zip(smiles).map(|(&index, smile)| analyze_expiry(index, &slices[index], smile)).collect();
+    check_calendar(&mut out);
+
+    let fit = options.fit.as_ref().map(|spec| fit_leverage(&leverage_target(slices, &out), spec));
+    Ok(Analysis { slices: out, fit })
+}
+
+/// The slices' indices in order of expiry; two slices at one expiry are an error.
+fn expiry_order(slices: &[Slice]) -> Result<Vec<usize>, AnalysisError> {
     if slices.is_empty() {
         return Err(AnalysisError::Empty);
     }
@@ -133,102 +147,119 @@ pub fn analyze(slices: &[Slice], options: &AnalyzeOptions) -> Result<Analysis, A
             return Err(AnalysisError::DuplicateExpiry { first, second });
         }
     }
-    let inputs: Vec<(&[SmileQuote], f64)> = order.iter().map(|&i| (slices[i].quotes(), slices[i].tau())).collect();
-    let smiles = fit_smiles(&inputs, options.smile)
-        .map_err(|(position, source)| AnalysisError::Smile { index: order[position], source })?;
-    let mut out: Vec<SliceAnalysis> = Vec::with_capacity(slices.len());
-    for (&index, smile) in order.iter().zip(smiles) {
-        let slice = &slices[index];
-        let tau = slice.tau();
-        let replication = replicate(&smile.curve, smile.quoted_range, tau);
-        let level_errors = level_errors(&smile, tau);
-        let mut warnings: Vec<String> = slice.notes().to_vec();
-        if let Some(errors) = &level_errors {
-            let variance = replication.levels.variance;
-            let vol_se = errors.total()[0] / (2.0 * variance.max(1e-12).sqrt());
-            if 2.0 * vol_se > UNCERTAIN_VOL_POINTS / 100.0 {
-                warnings.push(format!(
-                    "uncertain level: the variance swap is known to within {:.1} vol points (two standard errors) from these quotes",
-                    2.0 * vol_se * 100.0
-                ));
-            }
-        }
-        warnings.extend(smile.notes.iter().cloned());
-        for (i, distance) in &smile.excluded {
-            // `distance` is fitted smile minus quote: negative when the quote is above.
-            let side = if *distance < 0.0 { "above" } else { "below" };
-            warnings.push(format!(
-                "quote at strike {} is {:.1} vol points {side} the fitted smile: left out as off-market",
-                slice.strikes()[*i],
-                distance.abs() * 100.0
-            ));
-        }
-        let quotes = slice.quotes();
-        let flag = |index: usize, reason: FlagReason| {
-            let q = quotes[index];
-            FlaggedQuote {
-                index,
-                strike: slice.strikes()[index],
-                vol: q.vol,
-                fitted_vol: (smile.curve.total_variance(q.k).max(0.0) / tau).sqrt(),
-                half_spread: q.half_spread,
-                reason,
-            }
-        };
-        let mut flagged_quotes: Vec<FlaggedQuote> = smile
-            .excluded
-            .iter()
-            .map(|(i, _)| flag(*i, FlagReason::LeftOut))
-            .chain(smile.suspect.iter().map(|i| flag(*i, FlagReason::Suspect)))
-            .collect();
-        flagged_quotes.sort_by_key(|f| f.index);
-        for f in flagged_quotes.iter().filter(|f| f.reason == FlagReason::Suspect) {
-            warnings.push(format!(
-                "quote at strike {} is {:.1} vol points from the fitted smile, more than {} half spreads: suspect",
-                f.strike,
-                (f.fitted_vol - f.vol).abs() * 100.0,
-                crate::analytics::smile::SUSPECT_HALF_SPREADS
-            ));
-        }
-        let butterfly = smile.butterfly_over_quotes();
-        if let Some(b) = butterfly {
-            warnings.push(format!(
-                "butterfly arbitrage: Durrleman's g < 0 for log-moneyness in [{:.3}, {:.3}], minimum {:.3e} at {:.3}",
-                b.k_from, b.k_to, b.g_min, b.k_at_min
-            ));
-        }
-        if replication.wing_share > WIDE_WING_SHARE {
-            warnings.push(format!(
-                "wide wings: {:.1}% of the variance swap comes from beyond the quoted strikes",
-                100.0 * replication.wing_share
-            ));
-        }
-        if !replication.converged {
-            warnings.push(format!(
-                "replication did not reach its accuracy target (wings integrated to log-moneyness {:.1}..{:.1})",
-                replication.limits.0, replication.limits.1
-            ));
-        }
-        out.push(SliceAnalysis {
-            input_index: index,
-            tau,
-            forward: slice.forward(),
-            discount: slice.discount(),
-            points: slice.quotes().len(),
-            flagged_quotes,
-            smile,
-            replication,
-            level_errors,
-            forward_variance: f64::NAN,
-            butterfly,
-            calendar_ok: true,
-            warnings,
-        });
-    }
-    check_calendar(&mut out);
+    Ok(order)
+}
 
-    let fit = options.fit.as_ref().map(|spec| fit_leverage(&leverage_target(slices, &out), spec));
-    Ok(Analysis { slices: out, fit })
+/// One expiry from its fitted smile: the swap levels by replication, their standard
+/// errors, the flagged quotes and the warnings (forward variance and the calendar check
+/// come later, across expiries).
+fn analyze_expiry(index: usize, slice: &Slice, smile: FittedSmile) -> SliceAnalysis {
+    let tau = slice.tau();
+    let replication = replicate(&smile.curve, smile.quoted_range, tau);
+    let level_errors = level_errors(&smile, tau);
+    let flagged_quotes = flagged_quotes(slice, &smile);
+    let butterfly = smile.butterfly_over_quotes();
+    let warnings = expiry_warnings(slice, &smile, &replication, level_errors.as_ref(), &flagged_quotes, butterfly);
+    SliceAnalysis {
+        input_index: index,
+        tau,
+        forward: slice.forward(),
+        discount: slice.discount(),
+        points: slice.quotes().len(),
+        flagged_quotes,
+        smile,
+        replication,
+        level_errors,
+        forward_variance: f64::NAN,
+        butterfly,
+        calendar_ok: true,
+        warnings,
+    }
+}
+
+/// The quotes the smile fit left out or found suspect, in quote order.
+fn flagged_quotes(slice: &Slice, smile: &FittedSmile) -> Vec<FlaggedQuote> {
+    let (quotes, tau) = (slice.quotes(), slice.tau());
+    let flag = |index: usize, reason: FlagReason| {
+        let q = quotes[index];
+        FlaggedQuote {
+            index,
+            strike: slice.strikes()[index],
+            vol: q.vol,
+            fitted_vol: (smile.curve.total_variance(q.k).max(0.0) / tau).sqrt(),
+            half_spread: q.half_spread,
+            reason,
+        }
+    };
+    let mut flagged_quotes: Vec<FlaggedQuote> = smile
+        .excluded
+        .iter()
+        .map(|(i, _)| flag(*i, FlagReason::LeftOut))
+        .chain(smile.suspect.iter().map(|i| flag(*i, FlagReason::Suspect)))
+        .collect();
+    flagged_quotes.sort_by_key(|f| f.index);
+    flagged_quotes
+}
+
+/// The human warnings of one expiry, in a fixed order: the slice's notes, an uncertain
+/// level, the smile fit's notes, quotes left out, suspect quotes, butterfly arbitrage,
+/// wide wings, replication short of its target.
+fn expiry_warnings(
+    slice: &Slice,
+    smile: &FittedSmile,
+    replication: &Replication,
+    level_errors: Option<&LevelErrors>,
+    flagged_quotes: &[FlaggedQuote],
+    butterfly: Option<ButterflyViolation>,
+) -> Vec<String> {
+    let mut warnings: Vec<String> = slice.notes().to_vec();
+    if let Some(errors) = level_errors {
+        let variance = replication.levels.variance;
+        let vol_se = errors.total()[0] / (2.0 * variance.max(1e-12).sqrt());
+        if 2.0 * vol_se > UNCERTAIN_VOL_POINTS / 100.0 {
+            warnings.push(format!(
+                "uncertain level: the variance swap is known to within {:.1} vol points (two standard errors) from these quotes",
+                2.0 * vol_se * 100.0
+            ));
+        }
+    }
+    warnings.extend(smile.notes.iter().cloned());
+    for (i, distance) in &smile.excluded {
+        // `distance` is fitted smile minus quote: negative when the quote is above.
+        let side = if *distance < 0.0 { "above" } else { "below" };
+        warnings.push(format!(
+            "quote at strike {} is {:.1} vol points {side} the fitted smile: left out as off-market",
+            slice.strikes()[*i],
+            distance.abs() * 100.0
+        ));
+    }
+    for f in flagged_quotes.iter().filter(|f| f.reason == FlagReason::Suspect) {
+        warnings.push(format!(
+            "quote at strike {} is {:.1} vol points from the fitted smile, more than {} half spreads: suspect",
+            f.strike,
+            (f.fitted_vol - f.vol).abs() * 100.0,
+            crate::analytics::smile::SUSPECT_HALF_SPREADS
+        ));
+    }
+    if let Some(b) = butterfly {
+        warnings.push(format!(
+            "butterfly arbitrage: Durrleman's g < 0 for log-moneyness in [{:.3}, {:.3}], minimum {:.3e} at {:.3}",
+            b.k_from, b.k_to, b.g_min, b.k_at_min
+        ));
+    }
+    if replication.wing_share > WIDE_WING_SHARE {
+        warnings.push(format!(
+            "wide wings: {:.1}% of the variance swap comes from beyond the quoted strikes",
+            100.0 * replication.wing_share
+        ));
+    }
+    if !replication.converged {
+        warnings.push(format!(
+            "replication did not reach its accuracy target (wings integrated to log-moneyness {:.1}..{:.1})",
+            replication.limits.0, replication.limits.1
+        ));
+    }
+    warnings
 }
 
 /// Smallest leverage swap uncertainty the fit uses, as a share of the median over

@@ -147,6 +147,9 @@ where
         Ok((state.param(x).cost(cost), None))
     }
 
+    /// One iteration: the undamped step's stopping test, then damped trials. About 90
+    /// lines, a third of them the stopping rule's reasoning, kept whole so that the rule
+    /// reads in the order it is applied.
     fn next_iter(&mut self, problem: &mut Problem<O>, mut state: LmState) -> Result<(LmState, Option<KV>), Error> {
         let x = state.take_param().ok_or_else(|| Error::msg("Levenberg-Marquardt lost its parameters"))?;
         let r = match self.residual.take() {

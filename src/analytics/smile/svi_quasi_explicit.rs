@@ -24,6 +24,148 @@ pub(super) struct InnerData<'a> {
     pub(super) prior: SlopePrior,
 }
 
+/// Inward normals of the constraints `n.x + b >= 0` on `x = (a, d, c)`:
+/// `c - d`, `c + d`, `bound - c - d`, `bound - c + d`, `a`, `w_max - a`.
+const NORMALS: [[f64; 3]; 6] =
+    [[0.0, -1.0, 1.0], [0.0, 1.0, 1.0], [0.0, -1.0, -1.0], [0.0, 1.0, -1.0], [1.0, 0.0, 0.0], [-1.0, 0.0, 0.0]];
+
+/// Constraints active on each `(c, d)` face of [`InnerData::solve_faces`].
+const CD_ACTIVE: [&[usize]; 9] = [&[], &[0], &[1], &[2], &[3], &[0, 1], &[0, 2], &[1, 3], &[2, 3]];
+
+/// Constraints active on each `a` face (free, at 0, at `w_max`).
+const A_ACTIVE: [&[usize]; 3] = [&[], &[4], &[5]];
+
+/// Candidate faces `(c, d face, a face)` by number of active constraints, so the first
+/// one that meets the Karush-Kuhn-Tucker conditions (feasible, multipliers >= 0) is the
+/// optimum of this convex problem and ends the search.
+#[rustfmt::skip]
+const FACE_ORDER: [(usize, usize); 27] = [
+    (0, 0), (1, 0), (2, 0), (3, 0), (4, 0), (0, 1), (0, 2), (5, 0), (6, 0), (7, 0), (8, 0),
+    (1, 1), (2, 1), (3, 1), (4, 1), (1, 2), (2, 2), (3, 2), (4, 2),
+    (5, 1), (6, 1), (7, 1), (8, 1), (5, 2), (6, 2), (7, 2), (8, 2),
+];
+
+/// The inner quadratic `s - 2 v.x + x' M x` in `x = (a, d, c)` at one `(m, sigma)`.
+struct InnerProblem {
+    mat: [[f64; 3]; 3],
+    v: [f64; 3],
+    s: f64,
+    /// The data's normal sums, without the prior.
+    normal: NormalSums,
+}
+
+impl InnerProblem {
+    /// The weighted squared error at `x` (never below 0).
+    fn objective(&self, x: &[f64; 3]) -> f64 {
+        let (mat, v) = (&self.mat, &self.v);
+        let mut f = self.s;
+        for r in 0..3 {
+            f -= 2.0 * v[r] * x[r];
+            for c in 0..3 {
+                f += x[r] * mat[r][c] * x[c];
+            }
+        }
+        f.max(0.0)
+    }
+
+    /// The minimiser on the face `x = p0 + P t` with `a` held at `a_fixed` (or free) and
+    /// `(c, d)` at `origin` plus the `span` directions; `None` when singular.
+    fn face_minimiser(&self, a_fixed: Option<f64>, origin: (f64, f64), span: &[(f64, f64)]) -> Option<[f64; 3]> {
+        let (mat, v) = (&self.mat, &self.v);
+        let p0 = [a_fixed.unwrap_or(0.0), origin.1, origin.0];
+        let mut cols = [[0.0; 3]; 3];
+        let mut n = 0;
+        if a_fixed.is_none() {
+            cols[n] = [1.0, 0.0, 0.0];
+            n += 1;
+        }
+        for (dc, dd) in span.iter() {
+            cols[n] = [0.0, *dd, *dc];
+            n += 1;
+        }
+        let mut x = p0;
+        if n > 0 {
+            let mp0: [f64; 3] = std::array::from_fn(|r| (0..3).map(|c| mat[r][c] * p0[c]).sum());
+            let mut h = [[0.0; 3]; 3];
+            let mut g = [0.0; 3];
+            for i in 0..n {
+                for j in 0..n {
+                    h[i][j] = (0..3).map(|r| cols[i][r] * (0..3).map(|c| mat[r][c] * cols[j][c]).sum::<f64>()).sum();
+                }
+                g[i] = (0..3).map(|r| cols[i][r] * (v[r] - mp0[r])).sum();
+            }
+            let t = solve_small(n, h, g)?;
+            for (i, col) in cols.iter().take(n).enumerate() {
+                for r in 0..3 {
+                    x[r] += t[i] * col[r];
+                }
+            }
+        }
+        Some(x)
+    }
+
+    /// Whether `x` meets the KKT conditions with the `active` constraints: the gradient
+    /// is a non-negative combination of their normals (least-squares multipliers).
+    fn kkt(&self, x: &[f64; 3], active: &[usize]) -> bool {
+        let (mat, v) = (&self.mat, &self.v);
+        let grad: [f64; 3] = std::array::from_fn(|r| 2.0 * ((0..3).map(|c| mat[r][c] * x[c]).sum::<f64>() - v[r]));
+        let scale = grad.iter().map(|g| g.abs()).fold(0.0, f64::max).max(1e-300);
+        if active.is_empty() {
+            return scale <= 1e-300;
+        }
+        let n = active.len();
+        let mut h = [[0.0; 3]; 3];
+        let mut r = [0.0; 3];
+        for i in 0..n {
+            for j in 0..n {
+                h[i][j] = (0..3).map(|c| NORMALS[active[i]][c] * NORMALS[active[j]][c]).sum();
+            }
+            r[i] = (0..3).map(|c| NORMALS[active[i]][c] * grad[c]).sum();
+        }
+        let Some(lambda) = solve_small(n, h, r) else { return false };
+        let residual = (0..3)
+            .map(|c| (grad[c] - (0..n).map(|i| lambda[i] * NORMALS[active[i]][c]).sum::<f64>()).abs())
+            .fold(0.0, f64::max);
+        residual <= 1e-9 * scale && lambda.iter().take(n).all(|l| *l >= -1e-9 * scale)
+    }
+}
+
+/// The reduced cost's Gauss-Newton Hessian in `(m, ln sigma)`: the outer block minus
+/// the coupling through the inner solution's free directions (a Schur complement; the
+/// outer block alone when the inner solution sits in a corner).
+fn reduced_hessian(
+    outer_outer: [[f64; 2]; 2],
+    inner_inner: &[[f64; 3]; 3],
+    inner_outer: &[[f64; 2]; 3],
+    free: &[[f64; 3]; 3],
+    n_free: usize,
+) -> [[f64; 2]; 2] {
+    let mut reduced = [[0.0; 3]; 3];
+    let mut coupling = [[0.0; 3]; 2];
+    for i in 0..n_free {
+        for j in 0..n_free {
+            reduced[i][j] =
+                (0..3).map(|r| free[i][r] * (0..3).map(|c| inner_inner[r][c] * free[j][c]).sum::<f64>()).sum();
+        }
+        for c in 0..2 {
+            coupling[c][i] = (0..3).map(|r| free[i][r] * inner_outer[r][c]).sum();
+        }
+    }
+    let mut hessian = outer_outer;
+    if n_free > 0 {
+        let solved = [solve_small(n_free, reduced, coupling[0]), solve_small(n_free, reduced, coupling[1])];
+        if let [Some(y0), Some(y1)] = solved {
+            let y = [y0, y1];
+            for r in 0..2 {
+                for c in 0..2 {
+                    hessian[r][c] -= (0..n_free).map(|i| coupling[r][i] * y[c][i]).sum::<f64>();
+                }
+            }
+        }
+    }
+    hessian
+}
+
 impl InnerData<'_> {
     /// Best `(a, d, c)` for given `(m, sigma)`, its weighted squared error, and the
     /// weighted sums of the basis products it was solved with ([`NormalSums`]); with
@@ -36,8 +178,56 @@ impl InnerData<'_> {
         stop_at_kkt: bool,
         roots: &mut [f64],
     ) -> (f64, [f64; 3], NormalSums) {
-        // Normal equations of the basis [1, y, sqrt(1 + y^2)], y = (k - m)/sigma
-        // (symmetric: six sums, not nine).
+        let problem = self.inner_problem(m, sigma, roots);
+        let bound = self.slope_cap * sigma;
+        let tol = 1e-12 * (1.0 + bound + self.w_max);
+        let feasible = |x: &[f64; 3]| {
+            let (a, d, c) = (x[0], x[1], x[2]);
+            a >= -tol && a <= self.w_max + tol && c + tol >= d.abs() && c + d.abs() <= bound + tol
+        };
+        // Faces of the (c, d) square |d| <= c, c + |d| <= bound, as origin + span.
+        let cd_faces: [CdFace; 9] = [
+            ((0.0, 0.0), &[(1.0, 0.0), (0.0, 1.0)]),
+            ((0.0, 0.0), &[(1.0, 1.0)]),
+            ((0.0, 0.0), &[(1.0, -1.0)]),
+            ((bound, 0.0), &[(-1.0, 1.0)]),
+            ((bound, 0.0), &[(1.0, 1.0)]),
+            ((0.0, 0.0), &[]),
+            ((0.5 * bound, 0.5 * bound), &[]),
+            ((0.5 * bound, -0.5 * bound), &[]),
+            ((bound, 0.0), &[]),
+        ];
+        let a_faces: [Option<f64>; 3] = [None, Some(0.0), Some(self.w_max)];
+        let mut best = (f64::INFINITY, [0.0, 0.0, 0.0]);
+        for &(face_index, a_index) in FACE_ORDER.iter() {
+            let (origin, span) = &cd_faces[face_index];
+            let Some(x) = problem.face_minimiser(a_faces[a_index], *origin, span) else { continue };
+            if feasible(&x) {
+                let f = problem.objective(&x);
+                if f < best.0 {
+                    best = (f, x);
+                }
+                // The unconstrained optimum of a convex problem, when feasible, is the
+                // answer; so is a face optimum that meets the KKT conditions.
+                let mut active = [0usize; 3];
+                let mut count = 0;
+                for &c in CD_ACTIVE[face_index].iter().chain(A_ACTIVE[a_index].iter()) {
+                    active[count] = c;
+                    count += 1;
+                }
+                let active = &active[..count];
+                if (face_index == 0 && a_index == 0) || (stop_at_kkt && problem.kkt(&x, active)) {
+                    return (f, x, problem.normal);
+                }
+            }
+        }
+        (best.0, best.1, problem.normal)
+    }
+
+    /// The inner problem at `(m, sigma)`: normal equations of the basis
+    /// `[1, y, sqrt(1 + y^2)]`, `y = (k - m)/sigma` (symmetric: six sums, not nine), with
+    /// the prior on the wing slopes added. `roots[i]` receives `sqrt(1 + y_i^2)`.
+    fn inner_problem(&self, m: f64, sigma: f64, roots: &mut [f64]) -> InnerProblem {
         let inv_sigma = 1.0 / sigma;
         // The square roots first, in a loop of their own: it has no running sums, so
         // the roots of different quotes overlap (and pair up in SSE2 registers); the
@@ -66,157 +256,12 @@ impl InnerData<'_> {
         let p = self.prior.strength;
         let (t_l, t_r) = (self.prior.left, self.prior.right);
         let ridge = 2.0 * p * inv_sigma * inv_sigma;
-        let mat = [[s11, s1y, s1z], [s1y, syy + ridge, syz], [s1z, syz, szz + ridge]];
-        let v = [v1, vy + p * (t_r - t_l) * inv_sigma, vz + p * (t_l + t_r) * inv_sigma];
-        let s = s + p * (t_l * t_l + t_r * t_r);
-        let normal = [s11, s1y, s1z, syy, syz, szz];
-        let objective = |x: &[f64; 3]| {
-            let mut f = s;
-            for r in 0..3 {
-                f -= 2.0 * v[r] * x[r];
-                for c in 0..3 {
-                    f += x[r] * mat[r][c] * x[c];
-                }
-            }
-            f.max(0.0)
-        };
-        let bound = self.slope_cap * sigma;
-        let tol = 1e-12 * (1.0 + bound + self.w_max);
-        let feasible = |x: &[f64; 3]| {
-            let (a, d, c) = (x[0], x[1], x[2]);
-            a >= -tol && a <= self.w_max + tol && c + tol >= d.abs() && c + d.abs() <= bound + tol
-        };
-        // Faces of the (c, d) square |d| <= c, c + |d| <= bound, as origin + span.
-        let cd_faces: [CdFace; 9] = [
-            ((0.0, 0.0), &[(1.0, 0.0), (0.0, 1.0)]),
-            ((0.0, 0.0), &[(1.0, 1.0)]),
-            ((0.0, 0.0), &[(1.0, -1.0)]),
-            ((bound, 0.0), &[(-1.0, 1.0)]),
-            ((bound, 0.0), &[(1.0, 1.0)]),
-            ((0.0, 0.0), &[]),
-            ((0.5 * bound, 0.5 * bound), &[]),
-            ((0.5 * bound, -0.5 * bound), &[]),
-            ((bound, 0.0), &[]),
-        ];
-        let a_faces: [Option<f64>; 3] = [None, Some(0.0), Some(self.w_max)];
-        // Inward normals of the constraints n.x + b >= 0 on x = (a, d, c):
-        // c - d, c + d, bound - c - d, bound - c + d, a, w_max - a.
-        const NORMALS: [[f64; 3]; 6] =
-            [[0.0, -1.0, 1.0], [0.0, 1.0, 1.0], [0.0, -1.0, -1.0], [0.0, 1.0, -1.0], [1.0, 0.0, 0.0], [-1.0, 0.0, 0.0]];
-        // Constraints active on each (c, d) face and each a face.
-        const CD_ACTIVE: [&[usize]; 9] = [&[], &[0], &[1], &[2], &[3], &[0, 1], &[0, 2], &[1, 3], &[2, 3]];
-        const A_ACTIVE: [&[usize]; 3] = [&[], &[4], &[5]];
-        // Candidates by number of active constraints, so the first one that meets the
-        // Karush-Kuhn-Tucker conditions (feasible, multipliers >= 0) is the optimum of
-        // this convex problem and ends the search.
-        const ORDER: [(usize, usize); 27] = [
-            (0, 0),
-            (1, 0),
-            (2, 0),
-            (3, 0),
-            (4, 0),
-            (0, 1),
-            (0, 2),
-            (5, 0),
-            (6, 0),
-            (7, 0),
-            (8, 0),
-            (1, 1),
-            (2, 1),
-            (3, 1),
-            (4, 1),
-            (1, 2),
-            (2, 2),
-            (3, 2),
-            (4, 2),
-            (5, 1),
-            (6, 1),
-            (7, 1),
-            (8, 1),
-            (5, 2),
-            (6, 2),
-            (7, 2),
-            (8, 2),
-        ];
-        let kkt = |x: &[f64; 3], active: &[usize]| -> bool {
-            let grad: [f64; 3] = std::array::from_fn(|r| 2.0 * ((0..3).map(|c| mat[r][c] * x[c]).sum::<f64>() - v[r]));
-            let scale = grad.iter().map(|g| g.abs()).fold(0.0, f64::max).max(1e-300);
-            if active.is_empty() {
-                return scale <= 1e-300;
-            }
-            // Least-squares multipliers of grad = sum lambda_i n_i.
-            let n = active.len();
-            let mut h = [[0.0; 3]; 3];
-            let mut r = [0.0; 3];
-            for i in 0..n {
-                for j in 0..n {
-                    h[i][j] = (0..3).map(|c| NORMALS[active[i]][c] * NORMALS[active[j]][c]).sum();
-                }
-                r[i] = (0..3).map(|c| NORMALS[active[i]][c] * grad[c]).sum();
-            }
-            let Some(lambda) = solve_small(n, h, r) else { return false };
-            let residual = (0..3)
-                .map(|c| (grad[c] - (0..n).map(|i| lambda[i] * NORMALS[active[i]][c]).sum::<f64>()).abs())
-                .fold(0.0, f64::max);
-            residual <= 1e-9 * scale && lambda.iter().take(n).all(|l| *l >= -1e-9 * scale)
-        };
-        let mut best = (f64::INFINITY, [0.0, 0.0, 0.0]);
-        for &(face_index, a_index) in ORDER.iter() {
-            let (origin, span) = &cd_faces[face_index];
-            let a_fixed = &a_faces[a_index];
-            {
-                // x = p0 + P t, x = (a, d, c).
-                let p0 = [a_fixed.unwrap_or(0.0), origin.1, origin.0];
-                let mut cols = [[0.0; 3]; 3];
-                let mut n = 0;
-                if a_fixed.is_none() {
-                    cols[n] = [1.0, 0.0, 0.0];
-                    n += 1;
-                }
-                for (dc, dd) in span.iter() {
-                    cols[n] = [0.0, *dd, *dc];
-                    n += 1;
-                }
-                let mut x = p0;
-                if n > 0 {
-                    let mp0: [f64; 3] = std::array::from_fn(|r| (0..3).map(|c| mat[r][c] * p0[c]).sum());
-                    let mut h = [[0.0; 3]; 3];
-                    let mut g = [0.0; 3];
-                    for i in 0..n {
-                        for j in 0..n {
-                            h[i][j] =
-                                (0..3).map(|r| cols[i][r] * (0..3).map(|c| mat[r][c] * cols[j][c]).sum::<f64>()).sum();
-                        }
-                        g[i] = (0..3).map(|r| cols[i][r] * (v[r] - mp0[r])).sum();
-                    }
-                    let Some(t) = solve_small(n, h, g) else { continue };
-                    for (i, col) in cols.iter().take(n).enumerate() {
-                        for r in 0..3 {
-                            x[r] += t[i] * col[r];
-                        }
-                    }
-                }
-                if feasible(&x) {
-                    let f = objective(&x);
-                    if f < best.0 {
-                        best = (f, x);
-                    }
-                    // The unconstrained optimum of a convex problem, when feasible, is the
-                    // answer; so is a face optimum that meets the KKT conditions.
-                    let mut active = [0usize; 3];
-                    let mut count = 0;
-                    for &c in CD_ACTIVE[face_index].iter().chain(A_ACTIVE[a_index].iter()) {
-                        active[count] = c;
-                        count += 1;
-                    }
-                    let active = &active[..count];
-                    if (face_index == 0 && a_index == 0) || (stop_at_kkt && kkt(&x, active)) {
-                        return (f, x, normal);
-                    }
-                }
-            }
+        InnerProblem {
+            mat: [[s11, s1y, s1z], [s1y, syy + ridge, syz], [s1z, syz, szz + ridge]],
+            v: [v1, vy + p * (t_r - t_l) * inv_sigma, vz + p * (t_l + t_r) * inv_sigma],
+            s: s + p * (t_l * t_l + t_r * t_r),
+            normal: [s11, s1y, s1z, syy, syz, szz],
         }
-        (best.0, best.1, normal)
     }
 }
 
@@ -333,7 +378,16 @@ impl InnerData<'_> {
         inner_inner[1][1] += 2.0 * self.prior.strength;
         inner_inner[2][2] += 2.0 * self.prior.strength;
 
-        // Directions the inner solution can move in without leaving its face.
+        let (free, n_free) = self.free_directions(a, beta, gamma);
+        let hessian = reduced_hessian(outer_outer, &inner_inner, &inner_outer, &free, n_free);
+        (gradient, hessian)
+    }
+
+    /// Directions the inner solution `(a, beta, gamma)` can move in without leaving its
+    /// face of the box, and how many there are.
+    fn free_directions(&self, a: f64, beta: f64, gamma: f64) -> ([[f64; 3]; 3], usize) {
+        // Along each single (beta, gamma) constraint: (1, 1) keeps gamma - beta, (1, -1) gamma + beta.
+        const ALONG_FACE: [[f64; 3]; 4] = [[0.0, 1.0, 1.0], [0.0, 1.0, -1.0], [0.0, 1.0, -1.0], [0.0, 1.0, 1.0]];
         let cap_tol = 1e-9 * self.slope_cap;
         let a_tol = 1e-9 * self.w_max;
         let a_free = a > a_tol && a < self.w_max - a_tol;
@@ -343,8 +397,6 @@ impl InnerData<'_> {
             self.slope_cap - gamma - beta <= cap_tol,
             self.slope_cap - gamma + beta <= cap_tol,
         ];
-        // Along each single (beta, gamma) constraint: (1, 1) keeps gamma - beta, (1, -1) gamma + beta.
-        const ALONG_FACE: [[f64; 3]; 4] = [[0.0, 1.0, 1.0], [0.0, 1.0, -1.0], [0.0, 1.0, -1.0], [0.0, 1.0, 1.0]];
         let mut free = [[0.0; 3]; 3];
         let mut n_free = 0;
         if a_free {
@@ -364,30 +416,7 @@ impl InnerData<'_> {
             }
             _ => {}
         }
-        let mut reduced = [[0.0; 3]; 3];
-        let mut coupling = [[0.0; 3]; 2];
-        for i in 0..n_free {
-            for j in 0..n_free {
-                reduced[i][j] =
-                    (0..3).map(|r| free[i][r] * (0..3).map(|c| inner_inner[r][c] * free[j][c]).sum::<f64>()).sum();
-            }
-            for c in 0..2 {
-                coupling[c][i] = (0..3).map(|r| free[i][r] * inner_outer[r][c]).sum();
-            }
-        }
-        let mut hessian = outer_outer;
-        if n_free > 0 {
-            let solved = [solve_small(n_free, reduced, coupling[0]), solve_small(n_free, reduced, coupling[1])];
-            if let [Some(y0), Some(y1)] = solved {
-                let y = [y0, y1];
-                for r in 0..2 {
-                    for c in 0..2 {
-                        hessian[r][c] -= (0..n_free).map(|i| coupling[r][i] * y[c][i]).sum::<f64>();
-                    }
-                }
-            }
-        }
-        (gradient, hessian)
+        (free, n_free)
     }
 
     /// Levenberg–Marquardt (Marquardt 1963, J. Soc. Indust. Appl. Math. 11(2)) on the

@@ -439,23 +439,97 @@ pub fn fit(
     warm: Option<WarmStart>,
     prior: SlopePrior,
 ) -> Result<FittedSmile, SmileError> {
+    let stage = Stage::new(quotes, tau, prior);
+    let (params, robustness) = stage.robust_svi(warm);
+    let (params, robustness, kept, spline) = stage.leave_one_out_rounds(params, robustness);
     let n = quotes.len();
-    let with_spreads = quotes.iter().all(|q| q.half_spread.is_some_and(|h| h > 0.0));
-    // Noise scale of each quote in vol: its half spread; without bid/ask one for all
-    // (the spline's smoothing does not depend on a common scale).
-    let noise: Vec<f64> =
-        quotes.iter().map(|q| if with_spreads { q.half_spread.unwrap_or(1.0) } else { 1.0 }).collect();
-    // The SVI stage's spread weights: the leave-one-out screen and the standard
-    // errors' record use them as the stage does.
-    let (spread_weights, _) = svi::spread_weights(quotes, tau);
-    let mut robustness = vec![1.0; n];
-    let mut params = svi::fit_reweighted(quotes, tau, &robustness, prior, warm);
-    if with_spreads {
+    let asymptotes = wing_asymptotes(&params, quotes[kept[0]].k, quotes[kept[kept.len() - 1]].k);
+    let noisy = stage.looks_noisy(spline.as_ref());
+    let quoted_range = (quotes[0].k, quotes[n - 1].k);
+    let (curve, spline_stage, butterfly) = match spline {
+        Some(r) => {
+            let first = SmileCurve::SviSpline(SviSpline::assemble(params, r.spline.clone(), asymptotes, noisy));
+            let (curve, lambda, butterfly) = arbitrage_free_smoothing(first, &r, asymptotes, noisy, quoted_range);
+            let [_, _, weights] = r.data;
+            (curve, Some((weights, lambda)), Some(butterfly))
+        }
+        None => (SmileCurve::Svi(params), None, None),
+    };
+    let (excluded, suspect) = stage.flagged(&curve, &kept);
+    let rmse = rmse_vol(&curve, quotes, tau, kept.iter().copied());
+    let curve = match curve {
+        SmileCurve::SviSpline(mut c) => {
+            c.replication_tolerance = replication_tolerance(rmse, c.svi.total_variance(0.0), tau);
+            SmileCurve::SviSpline(c)
+        }
+        other => other,
+    };
+    let noise = QuoteNoise {
+        k: kept.iter().map(|&i| quotes[i].k).collect(),
+        residual: kept
+            .iter()
+            .map(|&i| quotes[i].vol * quotes[i].vol * tau - curve.total_variance(quotes[i].k))
+            .collect(),
+        scale: kept.iter().map(|&i| 2.0 * quotes[i].vol * tau * stage.noise[i]).collect(),
+        svi_weights: kept.iter().map(|&i| stage.spread_weights[i] * robustness[i]).collect(),
+        svi: params,
+        spline: spline_stage,
+    };
+    Ok(FittedSmile {
+        curve,
+        rmse_vol: rmse,
+        excluded,
+        suspect,
+        quoted_range,
+        notes: Vec::new(),
+        noise: Some(noise),
+        butterfly,
+    })
+}
+
+/// The quotes of one expiry and what every step of [`fit`] weighs them by.
+struct Stage<'a> {
+    quotes: &'a [SmileQuote],
+    tau: f64,
+    prior: SlopePrior,
+    /// Every quote has a positive half spread.
+    with_spreads: bool,
+    /// Noise scale of each quote in vol: its half spread; without bid/ask one for all
+    /// (the spline's smoothing does not depend on a common scale).
+    noise: Vec<f64>,
+    /// The SVI stage's spread weights: the leave-one-out screen and the standard
+    /// errors' record use them as the stage does.
+    spread_weights: Vec<f64>,
+}
+
+impl<'a> Stage<'a> {
+    fn new(quotes: &'a [SmileQuote], tau: f64, prior: SlopePrior) -> Self {
+        let with_spreads = quotes.iter().all(|q| q.half_spread.is_some_and(|h| h > 0.0));
+        let noise: Vec<f64> =
+            quotes.iter().map(|q| if with_spreads { q.half_spread.unwrap_or(1.0) } else { 1.0 }).collect();
+        let (spread_weights, _) = svi::spread_weights(quotes, tau);
+        Self { quotes, tau, prior, with_spreads, noise, spread_weights }
+    }
+
+    /// The quote's miss in vol against total variance `w` at its strike.
+    fn miss(&self, i: usize, w: f64) -> f64 {
+        self.quotes[i].vol - vol_of(w, self.tau)
+    }
+
+    /// SVI with bid/ask-scaled bisquare reweighting, then the outermost kept quotes
+    /// checked by refits without them; the parameters and each quote's robustness
+    /// weight (0: left out).
+    fn robust_svi(&self, warm: Option<WarmStart>) -> (SviParams, Vec<f64>) {
+        let (quotes, tau, prior, n) = (self.quotes, self.tau, self.prior, self.quotes.len());
+        let mut robustness = vec![1.0; n];
+        let mut params = svi::fit_reweighted(quotes, tau, &robustness, prior, warm);
+        if !self.with_spreads {
+            return (params, robustness);
+        }
         for _ in 0..ROBUST_ROUNDS {
             let next: Vec<f64> = (0..n)
                 .map(|i| {
-                    let miss = quotes[i].vol - vol_of(params.total_variance(quotes[i].k), tau);
-                    bisquare(miss / noise[i], ROBUST_CUT_HALF_SPREADS)
+                    bisquare(self.miss(i, params.total_variance(quotes[i].k)) / self.noise[i], ROBUST_CUT_HALF_SPREADS)
                 })
                 .collect();
             if next.iter().filter(|r| **r > 0.0).count() < MIN_KEPT {
@@ -481,32 +555,42 @@ pub fn fit(
             let i = if side == 0 { kept[0] } else { kept[kept.len() - 1] };
             // The refit is needed only where the linearised leave-one-out miss comes
             // anywhere near the cut.
-            let predicted = leave_one_out_miss(quotes, tau, &params, &spread_weights, &robustness, i);
-            if !(predicted.abs() > LEAVE_ONE_OUT_SCREEN * ROBUST_CUT_HALF_SPREADS * noise[i]) {
+            let predicted = leave_one_out_miss(quotes, tau, &params, &self.spread_weights, &robustness, i);
+            if !(predicted.abs() > LEAVE_ONE_OUT_SCREEN * ROBUST_CUT_HALF_SPREADS * self.noise[i]) {
                 continue;
             }
             let mut without = robustness.clone();
             without[i] = 0.0;
             let refit = svi::fit_reweighted(quotes, tau, &without, prior, WarmStart::from_params(&params));
-            let miss = quotes[i].vol - vol_of(refit.total_variance(quotes[i].k), tau);
-            if miss.abs() > ROBUST_CUT_HALF_SPREADS * noise[i] {
+            if self.miss(i, refit.total_variance(quotes[i].k)).abs() > ROBUST_CUT_HALF_SPREADS * self.noise[i] {
                 robustness = without;
                 params = refit;
             }
         }
+        (params, robustness)
     }
-    let mut kept: Vec<usize> = (0..n).filter(|&i| robustness[i] > 0.0).collect();
-    let mut spline = residual_spline(quotes, tau, &params, &kept, &noise);
-    if with_spreads {
+
+    /// The residual spline on the kept quotes, and with bid/ask rounds that leave out
+    /// quotes whose leave-one-out miss (from the spline's hat matrix) exceeds the cut,
+    /// refitting SVI and the spline each time.
+    fn leave_one_out_rounds(
+        &self,
+        mut params: SviParams,
+        mut robustness: Vec<f64>,
+    ) -> (SviParams, Vec<f64>, Vec<usize>, Option<ResidualFit>) {
+        let (quotes, tau, n) = (self.quotes, self.tau, self.quotes.len());
+        let mut kept: Vec<usize> = (0..n).filter(|&i| robustness[i] > 0.0).collect();
+        let mut spline = residual_spline(quotes, tau, &params, &kept, &self.noise);
+        if !self.with_spreads {
+            return (params, robustness, kept, spline);
+        }
         for _ in 0..LEAVE_ONE_OUT_ROUNDS {
             let Some(residual) = spline.as_ref() else { break };
             let hat = &residual.hat_diagonal;
-            let fitted =
-                |i: usize| vol_of(params.total_variance(quotes[i].k) + residual.spline.value(quotes[i].k), tau);
             let mut next = Vec::with_capacity(n);
             for i in 0..n {
-                let miss = quotes[i].vol - fitted(i);
-                let cut = ROBUST_CUT_HALF_SPREADS * noise[i];
+                let miss = self.miss(i, params.total_variance(quotes[i].k) + residual.spline.value(quotes[i].k));
+                let cut = ROBUST_CUT_HALF_SPREADS * self.noise[i];
                 let keep = match kept.binary_search(&i) {
                     Ok(pos) => (miss / (1.0 - hat[pos]).max(1e-6)).abs() < cut,
                     Err(_) => miss.abs() < cut,
@@ -520,81 +604,62 @@ pub fn fit(
             }
             kept = next;
             robustness = (0..n).map(|i| if kept.binary_search(&i).is_ok() { 1.0 } else { 0.0 }).collect();
-            params = svi::fit_reweighted(quotes, tau, &robustness, prior, WarmStart::from_params(&params));
-            spline = residual_spline(quotes, tau, &params, &kept, &noise);
+            params = svi::fit_reweighted(quotes, tau, &robustness, self.prior, WarmStart::from_params(&params));
+            spline = residual_spline(quotes, tau, &params, &kept, &self.noise);
+        }
+        (params, robustness, kept, spline)
+    }
+
+    /// Whether the spline's own residuals say the quotes are noisy, in vol (the
+    /// estimate is in units of the quotes' noise scale: half spreads with bid/ask, one
+    /// vol without). Measured on the tuning smile sets: 60 noisy quotes without
+    /// bid/ask, VS 8.3e-3 to 5.6e-3, the clean sets unchanged; on the demo day (bid/ask,
+    /// 0.08 vol points of noise) the edge curvature moved the long expiries' wing share
+    /// between 11% and 15% from one expiry to the next, and forward vols by up to 3 vol
+    /// points.
+    fn looks_noisy(&self, spline: Option<&ResidualFit>) -> bool {
+        let typical_noise_scale = if self.with_spreads {
+            crate::analytics::numerics::stats::median_of(self.noise.iter().copied())
+        } else {
+            Some(1.0)
+        };
+        match (spline.and_then(|r| r.noise_estimate), typical_noise_scale) {
+            (Some(estimate), Some(scale)) => estimate * scale > super::MONOTONE_MAX_NOISE_VOL,
+            _ => false,
         }
     }
+
+    /// Quotes left out (index, fitted minus quoted vol) and, with bid/ask, kept quotes
+    /// further from the curve than `SUSPECT_HALF_SPREADS` half spreads.
+    fn flagged(&self, curve: &SmileCurve, kept: &[usize]) -> (Vec<(usize, f64)>, Vec<usize>) {
+        let (quotes, tau) = (self.quotes, self.tau);
+        let excluded: Vec<(usize, f64)> = (0..quotes.len())
+            .filter(|i| kept.binary_search(i).is_err())
+            .map(|i| (i, vol_of(curve.total_variance(quotes[i].k), tau) - quotes[i].vol))
+            .collect();
+        let suspect: Vec<usize> = if self.with_spreads {
+            kept.iter()
+                .copied()
+                .filter(|&i| {
+                    let miss = vol_of(curve.total_variance(quotes[i].k), tau) - quotes[i].vol;
+                    miss.abs() > super::SUSPECT_HALF_SPREADS * self.noise[i]
+                })
+                .collect()
+        } else {
+            Vec::new()
+        };
+        (excluded, suspect)
+    }
+}
+
+/// The SVI wing slopes kept as the wings' asymptotes on a side whose outermost kept
+/// quote lies within `WING_REACH_SD` at-the-money deviations (`None`: the quotes reach
+/// far enough for the square-root wing alone).
+fn wing_asymptotes(params: &SviParams, k_lo: f64, k_hi: f64) -> [Option<f64>; 2] {
     let atm_sd = params.total_variance(0.0).max(1e-12).sqrt();
-    let (k_lo, k_hi) = (quotes[kept[0]].k, quotes[kept[kept.len() - 1]].k);
     let (slope_left, slope_right) = params.wing_slopes();
     let reach = WING_REACH_SD * atm_sd;
-    let asymptotes = [(-k_lo < reach).then_some(slope_left), (k_hi < reach).then_some(slope_right)];
-    // The spline's own residuals say how noisy the quotes are, in vol (the estimate is
-    // in units of the quotes' noise scale: half spreads with bid/ask, one vol without).
-    // Measured on the tuning smile sets: 60 noisy quotes without bid/ask, VS 8.3e-3 to
-    // 5.6e-3, the clean sets unchanged; on the demo day (bid/ask, 0.08 vol points of
-    // noise) the edge curvature moved the long expiries' wing share between 11% and
-    // 15% from one expiry to the next, and forward vols by up to 3 vol points.
-    let typical_noise_scale =
-        if with_spreads { crate::analytics::numerics::stats::median_of(noise.iter().copied()) } else { Some(1.0) };
-    let noisy = match (spline.as_ref().and_then(|r| r.noise_estimate), typical_noise_scale) {
-        (Some(estimate), Some(scale)) => estimate * scale > super::MONOTONE_MAX_NOISE_VOL,
-        _ => false,
-    };
-    let quoted_range = (quotes[0].k, quotes[n - 1].k);
-    let (curve, spline_stage, butterfly) = match spline {
-        Some(r) => {
-            let first = SmileCurve::SviSpline(SviSpline::assemble(params, r.spline.clone(), asymptotes, noisy));
-            let (curve, lambda, butterfly) = arbitrage_free_smoothing(first, &r, asymptotes, noisy, quoted_range);
-            let [_, _, weights] = r.data;
-            (curve, Some((weights, lambda)), Some(butterfly))
-        }
-        None => (SmileCurve::Svi(params), None, None),
-    };
-    let excluded: Vec<(usize, f64)> = (0..n)
-        .filter(|i| kept.binary_search(i).is_err())
-        .map(|i| (i, vol_of(curve.total_variance(quotes[i].k), tau) - quotes[i].vol))
-        .collect();
-    let suspect: Vec<usize> = if with_spreads {
-        kept.iter()
-            .copied()
-            .filter(|&i| {
-                let miss = vol_of(curve.total_variance(quotes[i].k), tau) - quotes[i].vol;
-                miss.abs() > super::SUSPECT_HALF_SPREADS * noise[i]
-            })
-            .collect()
-    } else {
-        Vec::new()
-    };
-    let rmse = rmse_vol(&curve, quotes, tau, kept.iter().copied());
-    let curve = match curve {
-        SmileCurve::SviSpline(mut c) => {
-            c.replication_tolerance = replication_tolerance(rmse, c.svi.total_variance(0.0), tau);
-            SmileCurve::SviSpline(c)
-        }
-        other => other,
-    };
-    let noise = QuoteNoise {
-        k: kept.iter().map(|&i| quotes[i].k).collect(),
-        residual: kept
-            .iter()
-            .map(|&i| quotes[i].vol * quotes[i].vol * tau - curve.total_variance(quotes[i].k))
-            .collect(),
-        scale: kept.iter().map(|&i| 2.0 * quotes[i].vol * tau * noise[i]).collect(),
-        svi_weights: kept.iter().map(|&i| spread_weights[i] * robustness[i]).collect(),
-        svi: params,
-        spline: spline_stage,
-    };
-    Ok(FittedSmile {
-        curve,
-        rmse_vol: rmse,
-        excluded,
-        suspect,
-        quoted_range,
-        notes: Vec::new(),
-        noise: Some(noise),
-        butterfly,
-    })
+    [(-k_lo < reach).then_some(slope_left), (k_hi < reach).then_some(slope_right)]
 }
 
 #[cfg(test)]

@@ -24,6 +24,9 @@ use std::f64::consts::PI;
 /// `r = x sin(psi) / sin(pi a - psi)`, which turns `dr / denominator` into
 /// `dpsi / (x sin(pi a))` and removes the peak exactly. Returns the value and an estimate of
 /// its absolute error.
+///
+/// One function of about 100 lines: the three pieces share the integrand, the peak's
+/// geometry and the cancellation-free trigonometric factors set up at the top.
 pub(super) fn real_integral(a: f64, b: f64, x: f64) -> Option<(f64, f64)> {
     /// Half-widths of the peak kept out of the `r` piece (the `psi` piece then starts at
     /// `psi` about `1/PEAK_WIDTHS` for `a` near 1, clear of the fast variation near 0).
