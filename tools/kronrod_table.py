@@ -10,7 +10,7 @@ Method, in mpmath at 90 digits:
 1. The Gauss nodes are the zeros of the Legendre polynomial P_n.
 2. The n + 1 Kronrod nodes are the zeros of the Stieltjes polynomial E_{n+1}: the
    monic polynomial of degree n + 1 with Integral_{-1}^{1} P_n(x) E_{n+1}(x) x^k dx = 0
-   for k = 0..n (Kronrod 1965; see also Math. Comp. 1997, "Calculation of
+   for k = 0..n (Nodes and Weights of Quadrature Formulas, 1965; see also Math. Comp. 1997, "Calculation of
    Gauss-Kronrod quadrature rules"), found from that linear system in monomials.
 3. The weights of both rules solve the moment equations sum_i w_i x_i^m =
    Integral_{-1}^{1} x^m dx for m below the number of nodes.

@@ -1,4 +1,5 @@
-//! Black (1976) prices of unit-forward options in total-variance form, and their inversion.
+//! Black-model prices (J. Financial Economics 3 (1976), "The pricing of commodity
+//! contracts") of unit-forward options in total-variance form, and their inversion.
 //!
 //! Prices here are undiscounted and divided by the forward (MATH.md section 1):
 //! with log-moneyness `k = ln(K/F)` and total implied variance `w = vol^2 tau`,
@@ -100,8 +101,8 @@ fn call_from_arguments(near: f64, far: f64, gauss: f64) -> f64 {
 }
 
 /// `exp(-x^2)` with `x^2` split exactly into a double and its rounding error
-/// (Veltkamp's split; Dekker 1971, Numer. Math. 18, "A floating-point technique
-/// for extending the available precision"), so that the exponential does not
+/// (the exact split of Numer. Math. 18 (1971), "A floating-point technique for
+/// extending the available precision"), so that the exponential does not
 /// amplify the rounding of the square (`x^2` up to about 40 in the wings, where
 /// it would cost 40 ulps).
 #[inline(always)]

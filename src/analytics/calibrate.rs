@@ -773,8 +773,8 @@ const ROBUST_FIT_ROUNDS: usize = 3;
 /// Largest change of any expiry's weight at which the reweighting has settled.
 const ROBUST_FIT_SETTLED: f64 = 0.05;
 
-/// Huber's tuning constant: 95% efficiency at normal errors (Huber 1964, Ann. Math.
-/// Statist. 35(1), "Robust estimation of a location parameter").
+/// The Huber loss's tuning constant: 95% efficiency at normal errors (Ann. Math.
+/// Statist. 35(1) (1964), "Robust estimation of a location parameter").
 const HUBER_K: f64 = 1.345;
 
 /// Huber weights `min(1, k s / |r|)` of residuals `r`, with `s` the larger of their

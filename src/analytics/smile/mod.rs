@@ -6,8 +6,8 @@
 //!   2009), weighted by bid/ask, with off-market quotes screened out. The default:
 //!   listed quotes are noisy and sparse, a smoothing fit with linear wings whose
 //!   slopes respect Lee's moment bound holds up where an interpolant reproduces the noise.
-//! - [`monotone`]: a shape-preserving cubic through the quotes (Fritsch & Carlson
-//!   1980, SIAM J. Numer. Anal. 17(2)) with linear wings, for dense clean quotes that
+//! - [`monotone`]: a shape-preserving cubic through the quotes (SIAM J. Numer.
+//!   Anal. 17(2) (1980), "Monotone piecewise cubic interpolation") with linear wings, for dense clean quotes that
 //!   should be reproduced exactly.
 
 pub mod monotone;

@@ -1,7 +1,8 @@
 //! Shape-preserving cubic interpolation of total variance over log-moneyness, with
 //! explicit linear wings.
 //!
-//! Node derivatives follow Fritsch & Carlson (1980, SIAM J. Numer. Anal. 17(2)) in
+//! Node derivatives follow SIAM J. Numer. Anal. 17(2) (1980), "Monotone piecewise
+//! cubic interpolation", in
 //! the weighted-harmonic-mean form (SIAM J. Sci. Stat. Comput., 1984, "A method for
 //! constructing local monotone piecewise cubic interpolants"), the same choice as
 //! scipy's `PchipInterpolator`: no overshoot between quotes, so total variance stays

@@ -1,5 +1,5 @@
-//! Raw SVI smiles and their quasi-explicit calibration (Zeliade Systems white paper
-//! 2009, "Quasi-explicit calibration of Gatheral's SVI model").
+//! Raw SVI smiles and their quasi-explicit calibration (Zeliade Systems white paper,
+//! 2009, as cited in MATH.md section 3).
 //!
 //! `w(k) = a + b (rho (k - m) + sqrt((k - m)^2 + sigma^2))`. For fixed `(m, sigma)`
 //! the fit is a linear least-squares problem in `(a, d, c) = (a, rho b sigma, b sigma)`

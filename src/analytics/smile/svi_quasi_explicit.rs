@@ -311,8 +311,7 @@ impl InnerData<'_> {
     }
 
     /// Half the gradient of the reduced cost in `(m, ln sigma)` and its Gauss–Newton
-    /// matrix, by variable projection (Golub & Pereyra 1973, SIAM J. Numer. Anal.
-    /// 10(2), "The differentiation of pseudo-inverses and nonlinear least squares
+    /// matrix, by variable projection (SIAM J. Numer. Anal. 10(2) (1973), "The differentiation of pseudo-inverses and nonlinear least squares
     /// problems whose variables separate").
     ///
     /// In the variables `(a, beta, gamma) = (a, d/sigma, c/sigma)` the model is
@@ -419,7 +418,8 @@ impl InnerData<'_> {
         (free, n_free)
     }
 
-    /// Levenberg–Marquardt (Marquardt 1963, J. Soc. Indust. Appl. Math. 11(2)) on the
+    /// Levenberg–Marquardt (J. Soc. Indust. Appl. Math. 11(2) (1963), "An algorithm for
+    /// least-squares estimation of nonlinear parameters") on the
     /// reduced cost over `(m, ln sigma)` from `start`, with steps clamped into the
     /// search box. Every accepted step lowers the cost, so the result is never worse
     /// than the start.
