@@ -80,9 +80,9 @@ async fn analyze_and_fits_store_nothing() {
     assert!(analysed.get("id").is_none());
 
     // The examples of the OpenAPI document are valid requests.
-    let example = post_json(&server, "/v1/analyze", logstrip::api::docs::snapshot_example().to_string()).await;
+    let example = post_json(&server, "/v1/analyze", logstrip::api::examples::snapshot_example().to_string()).await;
     assert_eq!(example.status(), StatusCode::OK);
-    let fit = post_json(&server, "/v1/fits", logstrip::api::docs::swaps_example().to_string()).await;
+    let fit = post_json(&server, "/v1/fits", logstrip::api::examples::swaps_example().to_string()).await;
     assert_eq!(fit.status(), StatusCode::OK);
     let fit: Value = fit.json().await.unwrap();
     assert_eq!(fit["curve"].as_array().unwrap().len(), 4);
@@ -124,7 +124,7 @@ async fn every_error_status_is_problem_json() {
         .unwrap();
     problem(text_plain, StatusCode::UNSUPPORTED_MEDIA_TYPE).await;
 
-    let mut doc = logstrip::api::docs::snapshot_example();
+    let mut doc = logstrip::api::examples::snapshot_example();
     doc["slices"][3]["points"][4]["vol"] = json!(-0.2);
     doc["slices"][1]["forward"] = json!(0.0);
     let invalid =
@@ -133,7 +133,7 @@ async fn every_error_status_is_problem_json() {
         invalid["errors"].as_array().unwrap().iter().map(|e| e["pointer"].as_str().unwrap()).collect();
     assert!(pointers.contains(&"/slices/3/points/4/vol"), "{invalid}");
     assert!(pointers.contains(&"/slices/1/forward"), "{invalid}");
-    let mut unknown_field = logstrip::api::docs::swaps_example();
+    let mut unknown_field = logstrip::api::examples::swaps_example();
     unknown_field["colour"] = json!(1);
     let unknown =
         problem(post_json(&server, "/v1/fits", unknown_field.to_string()).await, StatusCode::UNPROCESSABLE_ENTITY)
@@ -169,7 +169,7 @@ async fn every_error_status_is_problem_json() {
 async fn requests_over_the_time_limit_get_408() {
     let settings = ServiceSettings { request_timeout: Duration::from_secs(1), ..open_settings() };
     let server = start_sqlite(settings).await;
-    post_json(&server, "/v1/snapshots", logstrip::api::docs::snapshot_example().to_string()).await;
+    post_json(&server, "/v1/snapshots", logstrip::api::examples::snapshot_example().to_string()).await;
     let latest = server.client.get(server.url("/v1/underlyings/KESTREL50/latest")).send().await.unwrap();
     let tag = latest.headers()["etag"].to_str().unwrap().to_string();
     let held = server
@@ -311,7 +311,7 @@ async fn tokens_guard_writes_and_reads() {
         ..open_settings()
     };
     let server = start_sqlite(settings).await;
-    let body = logstrip::api::docs::snapshot_example().to_string();
+    let body = logstrip::api::examples::snapshot_example().to_string();
     let post = |token: Option<&'static str>| {
         let mut request = server.client.post(server.url("/v1/snapshots")).header("content-type", "application/json");
         if let Some(t) = token {
@@ -349,7 +349,7 @@ async fn probes_metrics_and_the_committed_openapi_document() {
     let ready: Value = server.client.get(server.url("/readyz")).send().await.unwrap().json().await.unwrap();
     assert_eq!(ready, json!({"status": "ready"}));
 
-    post_json(&server, "/v1/analyze", logstrip::api::docs::snapshot_example().to_string()).await;
+    post_json(&server, "/v1/analyze", logstrip::api::examples::snapshot_example().to_string()).await;
     post_json(&server, "/v1/analyze", "{".into()).await;
     let metrics = server.client.get(server.url("/metrics")).send().await.unwrap().text().await.unwrap();
     for expected in [
@@ -392,7 +392,7 @@ async fn probes_metrics_and_the_committed_openapi_document() {
 #[tokio::test]
 async fn graceful_shutdown_ends_long_polls_and_stops_accepting() {
     let mut server = start_sqlite(open_settings()).await;
-    post_json(&server, "/v1/snapshots", logstrip::api::docs::snapshot_example().to_string()).await;
+    post_json(&server, "/v1/snapshots", logstrip::api::examples::snapshot_example().to_string()).await;
     let latest = server.client.get(server.url("/v1/underlyings/KESTREL50/latest")).send().await.unwrap();
     let tag = latest.headers()["etag"].to_str().unwrap().to_string();
     let client = server.client.clone();
