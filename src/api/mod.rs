@@ -8,18 +8,18 @@
 
 pub mod auth;
 pub mod body;
-pub mod charts;
-pub mod docs;
+pub mod chart_endpoints;
 pub mod error;
 pub mod examples;
 pub mod handlers;
 pub mod history;
 pub mod metrics;
+pub mod openapi;
 pub mod query;
 pub mod responses;
-pub mod risk;
 pub mod state;
 pub mod timestamps;
+pub mod valuation_endpoints;
 
 pub use handlers::{MAX_WAIT_SECONDS, WAIT_RECHECK};
 pub use state::{AppState, ServiceSettings};
@@ -47,18 +47,18 @@ pub fn router(state: AppState) -> Router {
         .route("/v1/snapshots/{id}", get(handlers::get_snapshot))
         .route("/v1/analyze", post(handlers::post_analyze))
         .route("/v1/fits", post(handlers::post_fit))
-        .route("/v1/valuations", post(risk::post_valuation))
-        .route("/v1/realized", post(risk::post_realized))
+        .route("/v1/valuations", post(valuation_endpoints::post_valuation))
+        .route("/v1/realized", post(valuation_endpoints::post_realized))
         .route("/v1/underlyings", get(handlers::get_underlyings))
         .route("/v1/underlyings/{underlying}/latest", get(handlers::get_latest))
         .route("/v1/underlyings/{underlying}/history", get(history::get_history))
-        .route("/v1/underlyings/{underlying}/latest/chart.svg", get(charts::get_latest_chart))
-        .route("/v1/underlyings/{underlying}/history/chart.svg", get(charts::get_history_chart))
-        .route("/", get(charts::get_overview))
+        .route("/v1/underlyings/{underlying}/latest/chart.svg", get(chart_endpoints::get_latest_chart))
+        .route("/v1/underlyings/{underlying}/history/chart.svg", get(chart_endpoints::get_history_chart))
+        .route("/", get(chart_endpoints::get_overview))
         .route("/healthz", get(handlers::healthz))
         .route("/readyz", get(handlers::readyz))
         .route("/metrics", get(handlers::get_metrics))
-        .route("/openapi.json", get(docs::get_openapi))
+        .route("/openapi.json", get(openapi::get_openapi))
         .fallback(handlers::not_found)
         .method_not_allowed_fallback(handlers::method_not_allowed)
         .layer(axum::middleware::from_fn_with_state(state.settings().access.clone(), auth::require_token))

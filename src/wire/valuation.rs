@@ -12,7 +12,7 @@ use super::path::{FieldPath, InputErrors, Problem};
 use crate::analytics::analysis::Analysis;
 use crate::analytics::observations::ObservationCalendar;
 use crate::analytics::realized::{realized_variance, TRADING_DAYS_PER_YEAR};
-use crate::analytics::risk::{
+use crate::analytics::seasoned_swaps::{
     explain, market_of, swap_vega, value_swap, Accrual, Accrued, RiskError, ShiftedLevels, Side, SwapKind, SwapMarket,
     SwapPosition, VOL_POINT,
 };

@@ -1,4 +1,5 @@
-//! Charts and the overview page: `GET /v1/underlyings/{u}/latest/chart.svg`,
+//! Serves the charts drawn by [`crate::chart_drawing`] and the overview page:
+//! `GET /v1/underlyings/{u}/latest/chart.svg`,
 //! `GET /v1/underlyings/{u}/history/chart.svg?param=..`, and `GET /` (plain HTML,
 //! CSS and a little script served by the binary; no build step, nothing external).
 
@@ -6,7 +7,7 @@ use super::error::{ApiError, ProblemDetails};
 use super::history::{history_item, HistoryFit, HistoryItem};
 use super::query::query_params;
 use super::state::AppState;
-use crate::charts::{parameter_history_svg, term_structure_svg, TermPoint};
+use crate::chart_drawing::{parameter_history_svg, term_structure_svg, TermPoint};
 use crate::store::{HistoryQuery, Store};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
@@ -48,7 +49,7 @@ fn svg_response(svg: String, etag: Option<HeaderValue>) -> Response {
     response
 }
 
-fn chart_failed(e: crate::charts::ChartError) -> ApiError {
+fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
     ApiError::Internal(e.to_string())
 }
 

@@ -1,5 +1,5 @@
-//! `POST /v1/valuations` (a swap book against a snapshot, inline or stored) and
-//! `POST /v1/realized` (realized variance from closes).
+//! Serves swap valuation: `POST /v1/valuations` (a swap book against a snapshot,
+//! inline or stored) and `POST /v1/realized` (realized variance from closes).
 
 use super::body::JsonText;
 use super::error::{ApiError, ProblemDetails};
