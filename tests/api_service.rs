@@ -102,6 +102,48 @@ async fn analyze_and_fits_store_nothing() {
     .await;
 }
 
+/// A fit document with its run time (`fit.elapsed_us`, the one field that differs
+/// between two runs) taken out.
+fn without_run_time(mut doc: Value) -> Value {
+    if let Some(fit) = doc.get_mut("fit").and_then(Value::as_object_mut) {
+        assert!(fit.remove("elapsed_us").is_some_and(|t| t.is_u64()), "fit.elapsed_us expected: {doc}");
+    }
+    doc
+}
+
+/// `logstrip fit` and `POST /v1/fits` run one pipeline (`wire::fit_swap_levels`): the
+/// same swap levels give the same document, bar the run time, and the same problems.
+#[tokio::test]
+async fn the_command_line_and_the_service_fit_alike() {
+    let server = start_sqlite(open_settings()).await;
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data/kestrel50-swaps.json");
+    let text = std::fs::read_to_string(path).unwrap();
+    let cli =
+        std::process::Command::new(env!("CARGO_BIN_EXE_logstrip")).args(["fit", "--input", path]).output().unwrap();
+    assert!(cli.status.success(), "stderr: {}", String::from_utf8_lossy(&cli.stderr));
+    let from_cli: Value = serde_json::from_slice(&cli.stdout).unwrap();
+    let served = post_json(&server, "/v1/fits", text).await;
+    assert_eq!(served.status(), StatusCode::OK);
+    let from_service: Value = served.json().await.unwrap();
+    assert!(from_cli["fit"]["model_leverage_swap"].as_array().is_some_and(|m| m.len() == 5), "{from_cli}");
+    assert_eq!(without_run_time(from_cli), without_run_time(from_service));
+
+    let bad = r#"{"underlying":"KESTREL50","as_of":"2026-11-30T15:30:00Z","swaps":[{"tau":0.5,"variance_swap":-0.04,"gamma_swap":0.039}]}"#;
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_logstrip"))
+        .args(["fit", "--input", "-"])
+        .stdin(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    std::io::Write::write_all(&mut child.stdin.take().unwrap(), bad.as_bytes()).unwrap();
+    let cli = child.wait_with_output().unwrap();
+    assert_eq!(cli.status.code(), Some(2));
+    let body = problem(post_json(&server, "/v1/fits", bad.to_string()).await, StatusCode::UNPROCESSABLE_ENTITY).await;
+    assert_eq!(body["errors"][0]["pointer"], "/swaps/0/variance_swap");
+    assert_eq!(String::from_utf8_lossy(&cli.stderr).trim(), body["errors"][0]["detail"]);
+}
+
 #[tokio::test]
 async fn every_error_status_is_problem_json() {
     let settings = ServiceSettings { max_body: 64 * 1024, ..open_settings() };

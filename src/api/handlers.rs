@@ -8,10 +8,9 @@ use super::query::query_params;
 use super::responses::{StatusDoc, StoredAnalysisDoc, UnderlyingsDoc};
 use super::state::AppState;
 use super::timestamps::rfc3339;
-use crate::analytics::calibrate::fit_leverage;
 use crate::ingest::{self, Digest, IngestError, Prepared};
 use crate::store::{self, Store, StoredSnapshot, JSON_MEDIA_TYPE};
-use crate::wire::{self, output};
+use crate::wire;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, Request, State};
 use axum::http::{header, HeaderMap, HeaderValue, StatusCode};
@@ -217,13 +216,9 @@ pub async fn post_analyze(State(state): State<AppState>, body: SnapshotText) -> 
     security((), ("bearer" = []))
 )]
 pub async fn post_fit(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
-    let doc = tokio::task::spawn_blocking(move || -> Result<output::AnalysisDoc, ApiError> {
-        let swaps = wire::parse_swaps(&text)?;
-        let fit = swaps.fit.as_ref().map(|spec| fit_leverage(&swaps.target, spec));
-        Ok(output::swaps_doc(&swaps, fit.as_ref()))
-    })
-    .await
-    .map_err(|e| ApiError::Internal(format!("fit task failed: {e}")))??;
+    let doc = tokio::task::spawn_blocking(move || wire::fit_swap_levels(&text))
+        .await
+        .map_err(|e| ApiError::Internal(format!("fit task failed: {e}")))??;
     if let Some(fit) = &doc.fit {
         state.metrics().fit_duration_us(fit.elapsed_us);
     }

@@ -7,7 +7,6 @@ pub mod demo;
 pub mod serve;
 
 use crate::analytics::analysis::Analysis;
-use crate::analytics::calibrate::fit_leverage;
 use crate::wire::csv_input::{self, CsvHeader};
 use crate::wire::valuation::{self, BookDoc, ClosesDoc};
 use crate::wire::{self, output, InputErrors, SnapshotFormat};
@@ -213,10 +212,8 @@ pub fn run_realized(
 /// # Errors
 /// [`CliError`] for unreadable or invalid input.
 pub fn run_fit(input: &Path, pretty: bool, out: &mut dyn Write) -> Result<(), CliError> {
-    let text = read_input(input)?;
-    let swaps = wire::parse_swaps(&text)?;
-    let fit = swaps.fit.as_ref().map(|spec| fit_leverage(&swaps.target, spec));
-    write_json(&output::swaps_doc(&swaps, fit.as_ref()), pretty, out)
+    let doc = wire::fit_swap_levels(&read_input(input)?)?;
+    write_json(&doc, pretty, out)
 }
 
 /// `logstrip openapi`: the service's OpenAPI document (what `GET /openapi.json` serves).
