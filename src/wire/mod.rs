@@ -1,6 +1,8 @@
-//! The JSON formats of logstrip: raw input types as users write them, their
+//! The JSON and CSV formats of logstrip: raw input types as users write them, their
 //! validation into analytics types (every problem named by its field path), and
-//! the output types. Shared by the command line and the service.
+//! the output types. Shared by the command line and the service, which reach the
+//! analysis of a snapshot ([`parse_snapshot_as`], [`analyze_valid`]) and the fit of
+//! swap levels ([`fit_swap_levels`]) through the same functions here.
 
 pub mod csv_input;
 pub mod input;
