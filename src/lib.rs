@@ -9,7 +9,7 @@
 
 pub mod analytics;
 pub mod api;
-pub mod charts;
+pub mod chart_drawing;
 pub mod cli;
 pub mod ingest;
 pub mod store;

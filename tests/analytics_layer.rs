@@ -4,7 +4,10 @@
 //! fixtures). A layering rule of this project (DEVELOPERS.md, Layers), checked on the
 //! source text.
 
-use std::path::{Path, PathBuf};
+mod source_scan;
+
+use source_scan::{lines_outside_tests, rust_files};
+use std::path::Path;
 
 /// Paths that mark a dependency the analytics must not have, with what each means
 /// (crate paths with their `::`, so that a word such as "hypergeometric" passes).
@@ -20,53 +23,6 @@ const FORBIDDEN: [(&str, &str); 10] = [
     ("std::fs", "file system"),
     ("std::net", "network"),
 ];
-
-fn rust_files(dir: &Path, out: &mut Vec<PathBuf>) {
-    let entries = std::fs::read_dir(dir).expect("analytics source directory readable");
-    for entry in entries {
-        let path = entry.expect("directory entry").path();
-        if path.is_dir() {
-            rust_files(&path, out);
-        } else if path.extension().is_some_and(|e| e == "rs") {
-            out.push(path);
-        }
-    }
-}
-
-/// The lines of `text` (with their 0-based numbers) outside every item marked
-/// `#[cfg(test)]`: from the attribute to the brace that closes the item's first
-/// opening brace (braces in strings and comments are not expected in this code).
-fn lines_outside_tests(text: &str) -> Vec<(usize, &str)> {
-    let mut out = Vec::new();
-    let mut skipping = false;
-    let mut depth = 0i64;
-    let mut opened = false;
-    for (number, line) in text.lines().enumerate() {
-        if !skipping && line.trim_start().starts_with("#[cfg(test)]") {
-            (skipping, depth, opened) = (true, 0, false);
-            continue;
-        }
-        if skipping {
-            for c in line.chars() {
-                match c {
-                    '{' => {
-                        depth += 1;
-                        opened = true;
-                    }
-                    '}' => depth -= 1,
-                    _ => {}
-                }
-            }
-            // An item without braces (`#[cfg(test)] use ...;`) ends at its semicolon.
-            if (opened && depth <= 0) || (!opened && line.trim_end().ends_with(';')) {
-                skipping = false;
-            }
-            continue;
-        }
-        out.push((number, line));
-    }
-    out
-}
 
 #[test]
 fn analytics_uses_no_http_database_async_or_serde() {

@@ -75,7 +75,7 @@ async fn a_body_sent_too_slowly_gets_408() {
 #[tokio::test]
 async fn many_concurrent_long_polls_all_get_answers() {
     let server = start_sqlite(open_settings()).await;
-    post_json(&server, "/v1/snapshots", logstrip::api::docs::snapshot_example().to_string()).await;
+    post_json(&server, "/v1/snapshots", logstrip::api::examples::snapshot_example().to_string()).await;
     let latest = server.client.get(server.url("/v1/underlyings/KESTREL50/latest")).send().await.expect("latest");
     let tag = latest.headers()["etag"].to_str().expect("etag").to_string();
     let client = reqwest::Client::builder().pool_max_idle_per_host(0).build().expect("client");

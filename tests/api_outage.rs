@@ -54,7 +54,7 @@ async fn store_outage_gives_503_and_the_service_recovers() {
     let relayed_url = format!("postgres://postgres@127.0.0.1:{port}/{}", db.name);
     let store = AnyStore::open(&relayed_url).await.expect("open through the relay");
     let server = start_with_store(store, open_settings(), None).await;
-    let example = logstrip::api::docs::snapshot_example();
+    let example = logstrip::api::examples::snapshot_example();
     let created = post_json(&server, "/v1/snapshots", example.to_string()).await;
     assert_eq!(created.status(), StatusCode::CREATED);
 

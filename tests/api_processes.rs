@@ -29,7 +29,7 @@ async fn sigterm_finishes_the_request_in_flight_then_exits_cleanly() {
         .post(server.url("/v1/snapshots"))
         .bearer_auth("process-test-token")
         .header("content-type", "application/json")
-        .body(logstrip::api::docs::snapshot_example().to_string())
+        .body(logstrip::api::examples::snapshot_example().to_string())
         .send()
         .await
         .expect("post");

@@ -3,8 +3,7 @@
 mod common;
 
 use common::*;
-use logstrip::api::docs::{snapshot_example, CSV_SNAPSHOT_EXAMPLE};
-use logstrip::api::risk::valuation_example;
+use logstrip::api::examples::{snapshot_example, valuation_example, CSV_SNAPSHOT_EXAMPLE};
 use reqwest::StatusCode;
 use serde_json::{json, Value};
 

@@ -80,9 +80,9 @@ async fn analyze_and_fits_store_nothing() {
     assert!(analysed.get("id").is_none());
 
     // The examples of the OpenAPI document are valid requests.
-    let example = post_json(&server, "/v1/analyze", logstrip::api::docs::snapshot_example().to_string()).await;
+    let example = post_json(&server, "/v1/analyze", logstrip::api::examples::snapshot_example().to_string()).await;
     assert_eq!(example.status(), StatusCode::OK);
-    let fit = post_json(&server, "/v1/fits", logstrip::api::docs::swaps_example().to_string()).await;
+    let fit = post_json(&server, "/v1/fits", logstrip::api::examples::swaps_example().to_string()).await;
     assert_eq!(fit.status(), StatusCode::OK);
     let fit: Value = fit.json().await.unwrap();
     assert_eq!(fit["curve"].as_array().unwrap().len(), 4);
@@ -100,6 +100,48 @@ async fn analyze_and_fits_store_nothing() {
         StatusCode::NOT_FOUND,
     )
     .await;
+}
+
+/// A fit document with its run time (`fit.elapsed_us`, the one field that differs
+/// between two runs) taken out.
+fn without_run_time(mut doc: Value) -> Value {
+    if let Some(fit) = doc.get_mut("fit").and_then(Value::as_object_mut) {
+        assert!(fit.remove("elapsed_us").is_some_and(|t| t.is_u64()), "fit.elapsed_us expected: {doc}");
+    }
+    doc
+}
+
+/// `logstrip fit` and `POST /v1/fits` run one pipeline (`wire::fit_swap_levels`): the
+/// same swap levels give the same document, bar the run time, and the same problems.
+#[tokio::test]
+async fn the_command_line_and_the_service_fit_alike() {
+    let server = start_sqlite(open_settings()).await;
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data/kestrel50-swaps.json");
+    let text = std::fs::read_to_string(path).unwrap();
+    let cli =
+        std::process::Command::new(env!("CARGO_BIN_EXE_logstrip")).args(["fit", "--input", path]).output().unwrap();
+    assert!(cli.status.success(), "stderr: {}", String::from_utf8_lossy(&cli.stderr));
+    let from_cli: Value = serde_json::from_slice(&cli.stdout).unwrap();
+    let served = post_json(&server, "/v1/fits", text).await;
+    assert_eq!(served.status(), StatusCode::OK);
+    let from_service: Value = served.json().await.unwrap();
+    assert!(from_cli["fit"]["model_leverage_swap"].as_array().is_some_and(|m| m.len() == 5), "{from_cli}");
+    assert_eq!(without_run_time(from_cli), without_run_time(from_service));
+
+    let bad = r#"{"underlying":"KESTREL50","as_of":"2026-11-30T15:30:00Z","swaps":[{"tau":0.5,"variance_swap":-0.04,"gamma_swap":0.039}]}"#;
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_logstrip"))
+        .args(["fit", "--input", "-"])
+        .stdin(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    std::io::Write::write_all(&mut child.stdin.take().unwrap(), bad.as_bytes()).unwrap();
+    let cli = child.wait_with_output().unwrap();
+    assert_eq!(cli.status.code(), Some(2));
+    let body = problem(post_json(&server, "/v1/fits", bad.to_string()).await, StatusCode::UNPROCESSABLE_ENTITY).await;
+    assert_eq!(body["errors"][0]["pointer"], "/swaps/0/variance_swap");
+    assert_eq!(String::from_utf8_lossy(&cli.stderr).trim(), body["errors"][0]["detail"]);
 }
 
 #[tokio::test]
@@ -124,7 +166,7 @@ async fn every_error_status_is_problem_json() {
         .unwrap();
     problem(text_plain, StatusCode::UNSUPPORTED_MEDIA_TYPE).await;
 
-    let mut doc = logstrip::api::docs::snapshot_example();
+    let mut doc = logstrip::api::examples::snapshot_example();
     doc["slices"][3]["points"][4]["vol"] = json!(-0.2);
     doc["slices"][1]["forward"] = json!(0.0);
     let invalid =
@@ -133,7 +175,7 @@ async fn every_error_status_is_problem_json() {
         invalid["errors"].as_array().unwrap().iter().map(|e| e["pointer"].as_str().unwrap()).collect();
     assert!(pointers.contains(&"/slices/3/points/4/vol"), "{invalid}");
     assert!(pointers.contains(&"/slices/1/forward"), "{invalid}");
-    let mut unknown_field = logstrip::api::docs::swaps_example();
+    let mut unknown_field = logstrip::api::examples::swaps_example();
     unknown_field["colour"] = json!(1);
     let unknown =
         problem(post_json(&server, "/v1/fits", unknown_field.to_string()).await, StatusCode::UNPROCESSABLE_ENTITY)
@@ -169,7 +211,7 @@ async fn every_error_status_is_problem_json() {
 async fn requests_over_the_time_limit_get_408() {
     let settings = ServiceSettings { request_timeout: Duration::from_secs(1), ..open_settings() };
     let server = start_sqlite(settings).await;
-    post_json(&server, "/v1/snapshots", logstrip::api::docs::snapshot_example().to_string()).await;
+    post_json(&server, "/v1/snapshots", logstrip::api::examples::snapshot_example().to_string()).await;
     let latest = server.client.get(server.url("/v1/underlyings/KESTREL50/latest")).send().await.unwrap();
     let tag = latest.headers()["etag"].to_str().unwrap().to_string();
     let held = server
@@ -311,7 +353,7 @@ async fn tokens_guard_writes_and_reads() {
         ..open_settings()
     };
     let server = start_sqlite(settings).await;
-    let body = logstrip::api::docs::snapshot_example().to_string();
+    let body = logstrip::api::examples::snapshot_example().to_string();
     let post = |token: Option<&'static str>| {
         let mut request = server.client.post(server.url("/v1/snapshots")).header("content-type", "application/json");
         if let Some(t) = token {
@@ -349,7 +391,7 @@ async fn probes_metrics_and_the_committed_openapi_document() {
     let ready: Value = server.client.get(server.url("/readyz")).send().await.unwrap().json().await.unwrap();
     assert_eq!(ready, json!({"status": "ready"}));
 
-    post_json(&server, "/v1/analyze", logstrip::api::docs::snapshot_example().to_string()).await;
+    post_json(&server, "/v1/analyze", logstrip::api::examples::snapshot_example().to_string()).await;
     post_json(&server, "/v1/analyze", "{".into()).await;
     let metrics = server.client.get(server.url("/metrics")).send().await.unwrap().text().await.unwrap();
     for expected in [
@@ -392,7 +434,7 @@ async fn probes_metrics_and_the_committed_openapi_document() {
 #[tokio::test]
 async fn graceful_shutdown_ends_long_polls_and_stops_accepting() {
     let mut server = start_sqlite(open_settings()).await;
-    post_json(&server, "/v1/snapshots", logstrip::api::docs::snapshot_example().to_string()).await;
+    post_json(&server, "/v1/snapshots", logstrip::api::examples::snapshot_example().to_string()).await;
     let latest = server.client.get(server.url("/v1/underlyings/KESTREL50/latest")).send().await.unwrap();
     let tag = latest.headers()["etag"].to_str().unwrap().to_string();
     let client = server.client.clone();

@@ -257,7 +257,7 @@ fn realized_from_a_csv_of_closes_and_gaps_named_by_line() {
 fn analyze_a_csv_snapshot_with_header_values_from_flags() {
     let dir = tempfile::tempdir().expect("temp dir");
     let path = dir.path().join("quotes.csv");
-    let bare: String = logstrip::api::docs::CSV_SNAPSHOT_EXAMPLE
+    let bare: String = logstrip::api::examples::CSV_SNAPSHOT_EXAMPLE
         .lines()
         .map(|l| l.splitn(3, ',').nth(2).unwrap_or("").to_string() + "\n")
         .collect();

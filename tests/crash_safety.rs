@@ -29,7 +29,7 @@ async fn acknowledged_snapshots_survive_kill_9() {
             writers.push(tokio::spawn(async move {
                 for i in 0..10_000u32 {
                     let minute = first + i;
-                    let mut doc = logstrip::api::docs::snapshot_example();
+                    let mut doc = logstrip::api::examples::snapshot_example();
                     let as_of = chrono::DateTime::parse_from_rfc3339("2026-11-01T00:00:00Z").expect("time")
                         + chrono::Duration::seconds(i64::from(minute));
                     let as_of = as_of.to_utc().to_rfc3339_opts(chrono::SecondsFormat::Secs, true);

@@ -5,7 +5,7 @@
 //! of variance, gamma and leverage swaps -> [`term`] structure and forward
 //! variance -> [`calibrate`] an affine forward-variance model ([`models`]) to the
 //! leverage swaps; [`uncertainty`] puts standard errors on the levels.
-//! [`analysis::analyze`] runs the whole chain; [`risk`] values seasoned
+//! [`analysis::analyze`] runs the whole chain; [`seasoned_swaps`] values seasoned
 //! swap positions on its result, with [`realized`] variance from closes.
 
 pub mod analysis;
@@ -16,7 +16,7 @@ pub mod numerics;
 pub mod observations;
 pub mod realized;
 pub mod replication;
-pub mod risk;
+pub mod seasoned_swaps;
 pub mod slice;
 pub mod smile;
 pub mod special;

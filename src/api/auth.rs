@@ -3,7 +3,6 @@
 //! their content nor their length leaks through timing.
 
 use super::error::ApiError;
-use super::AppState;
 use axum::extract::{Request, State};
 use axum::http::{header, Method};
 use axum::middleware::Next;
@@ -65,8 +64,7 @@ fn bearer(request: &Request) -> Option<&str> {
 }
 
 /// Middleware: checks the bearer token against [`Access`].
-pub async fn require_token(State(state): State<AppState>, request: Request, next: Next) -> Response {
-    let access = &state.settings().access;
+pub async fn require_token(State(access): State<Access>, request: Request, next: Next) -> Response {
     let presented = bearer(&request);
     let is_write = request.method() == Method::POST;
     let granted = if is_public(request.uri().path()) {

@@ -2,7 +2,7 @@
 //! the text must be UTF-8 (400), before the wire layer parses it.
 
 use super::error::ApiError;
-use super::AppState;
+use super::state::AppState;
 use crate::wire::csv_input::CsvHeader;
 use crate::wire::{FieldPath, InputErrors, SnapshotFormat};
 use axum::body::Bytes;

@@ -2,37 +2,34 @@
 //! [`super::history`]).
 
 use super::body::{JsonText, SnapshotText};
-use super::docs::{self, StoredAnalysisDoc, UnderlyingsDoc};
 use super::error::{ApiError, ProblemDetails};
-use super::{AppState, MAX_WAIT_SECONDS, WAIT_RECHECK};
-use crate::analytics::calibrate::fit_leverage;
+use super::examples;
+use super::query::query_params;
+use super::responses::{StatusDoc, StoredAnalysisDoc, UnderlyingsDoc};
+use super::state::AppState;
+use super::timestamps::rfc3339;
 use crate::ingest::{self, Digest, IngestError, Prepared};
 use crate::store::{self, Store, StoredSnapshot, JSON_MEDIA_TYPE};
-use crate::wire::{self, output};
+use crate::wire;
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, Request, State};
 use axum::http::{header, HeaderMap, HeaderValue, StatusCode};
 use axum::middleware::Next;
 use axum::response::{IntoResponse, Response};
 use axum::Json;
-use chrono::{DateTime, SecondsFormat, Utc};
+use chrono::{DateTime, Utc};
 use serde::Deserialize;
 use serde_json::Value;
 use std::time::{Duration, Instant};
 use utoipa::IntoParams;
 
+/// Longest `?wait` a reader may ask for on `latest`, seconds.
+pub const MAX_WAIT_SECONDS: u64 = 60;
+/// Long-polling readers re-check the store at least this often, in case a
+/// notification from another replica was lost.
+pub const WAIT_RECHECK: Duration = Duration::from_secs(5);
 /// How long `/readyz` waits for the store.
 const READY_TIMEOUT: Duration = Duration::from_secs(2);
-
-/// RFC 3339 with microseconds, UTC (`Z`), as every stored time is shown.
-pub fn rfc3339(t: DateTime<Utc>) -> String {
-    t.to_rfc3339_opts(SecondsFormat::AutoSi, true)
-}
-
-/// Unwraps query parameters, naming a malformed query as such.
-pub fn query_params<T>(parsed: Result<Query<T>, QueryRejection>) -> Result<T, ApiError> {
-    parsed.map(|Query(q)| q).map_err(|e| ApiError::Parameter { name: "query", message: e.body_text() })
-}
 
 /// Parses, validates and analyses a snapshot on the blocking pool, counting the
 /// outcome.
@@ -123,17 +120,12 @@ fn if_none_match(header_value: &str, tag: &str) -> bool {
         .any(|candidate| candidate == "*" || candidate.trim_start_matches("W/") == tag)
 }
 
-fn store_failed(state: &AppState, operation: &str, e: store::StoreError) -> ApiError {
-    state.metrics().store_error(operation);
-    e.into()
-}
-
 /// Analyse a snapshot and store it.
 #[utoipa::path(
     post, path = "/v1/snapshots", tag = "snapshots",
     request_body(description = "A snapshot as JSON, or as CSV (one row per quote)",
-                 content((crate::wire::input::SnapshotDoc = "application/json", example = json!(docs::snapshot_example())),
-                         (String = "text/csv", example = json!(docs::CSV_SNAPSHOT_EXAMPLE)))),
+                 content((crate::wire::input::SnapshotDoc = "application/json", example = json!(examples::snapshot_example())),
+                         (String = "text/csv", example = json!(examples::CSV_SNAPSHOT_EXAMPLE)))),
     params(CsvParams),
     responses(
         (status = 201, description = "Stored; `Location` names the new resource", body = StoredAnalysisDoc,
@@ -154,7 +146,7 @@ fn store_failed(state: &AppState, operation: &str, e: store::StoreError) -> ApiE
 pub async fn post_snapshot(State(state): State<AppState>, body: SnapshotText) -> Result<Response, ApiError> {
     let analysed = analyse(&state, body, Digest::ForStorage).await?;
     let analysis_json = analysed.record.analysis.clone();
-    let inserted = state.store().insert(analysed.record).await.map_err(|e| store_failed(&state, "insert", e))?;
+    let inserted = state.store().insert(analysed.record).await.map_err(|e| state.store_failed("insert", e))?;
     let location = HeaderValue::from_str(&format!("/v1/snapshots/{}", inserted.id))
         .map_err(|e| ApiError::Internal(e.to_string()))?;
     if inserted.created {
@@ -166,7 +158,7 @@ pub async fn post_snapshot(State(state): State<AppState>, body: SnapshotText) ->
             .store()
             .get(inserted.id, false)
             .await
-            .map_err(|e| store_failed(&state, "get", e))?
+            .map_err(|e| state.store_failed("get", e))?
             .ok_or_else(|| ApiError::Internal(format!("snapshot {} vanished", inserted.id)))?;
         Ok(json_text(StatusCode::OK, &[(header::LOCATION, location)], stored_record_body(&record)?))
     }
@@ -188,8 +180,8 @@ pub struct CsvParams {
 #[utoipa::path(
     post, path = "/v1/analyze", tag = "snapshots",
     request_body(description = "A snapshot as JSON, or as CSV (one row per quote)",
-                 content((crate::wire::input::SnapshotDoc = "application/json", example = json!(docs::snapshot_example())),
-                         (String = "text/csv", example = json!(docs::CSV_SNAPSHOT_EXAMPLE)))),
+                 content((crate::wire::input::SnapshotDoc = "application/json", example = json!(examples::snapshot_example())),
+                         (String = "text/csv", example = json!(examples::CSV_SNAPSHOT_EXAMPLE)))),
     params(CsvParams),
     responses(
         (status = 200, description = "The analysis", body = crate::wire::output::AnalysisDoc),
@@ -211,7 +203,7 @@ pub async fn post_analyze(State(state): State<AppState>, body: SnapshotText) -> 
 #[utoipa::path(
     post, path = "/v1/fits", tag = "fits",
     request_body(content = crate::wire::input::SwapsDoc, content_type = "application/json",
-                 example = json!(docs::swaps_example())),
+                 example = json!(examples::swaps_example())),
     responses(
         (status = 200, description = "The swaps as given, with forward variance, and the fit", body = crate::wire::output::AnalysisDoc),
         (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
@@ -224,13 +216,9 @@ pub async fn post_analyze(State(state): State<AppState>, body: SnapshotText) -> 
     security((), ("bearer" = []))
 )]
 pub async fn post_fit(State(state): State<AppState>, JsonText(text): JsonText) -> Result<Response, ApiError> {
-    let doc = tokio::task::spawn_blocking(move || -> Result<output::AnalysisDoc, ApiError> {
-        let swaps = wire::parse_swaps(&text)?;
-        let fit = swaps.fit.as_ref().map(|spec| fit_leverage(&swaps.target, spec));
-        Ok(output::swaps_doc(&swaps, fit.as_ref()))
-    })
-    .await
-    .map_err(|e| ApiError::Internal(format!("fit task failed: {e}")))??;
+    let doc = tokio::task::spawn_blocking(move || wire::fit_swap_levels(&text))
+        .await
+        .map_err(|e| ApiError::Internal(format!("fit task failed: {e}")))??;
     if let Some(fit) = &doc.fit {
         state.metrics().fit_duration_us(fit.elapsed_us);
     }
@@ -280,7 +268,7 @@ pub async fn get_snapshot(
         .store()
         .get(numeric, with_input)
         .await
-        .map_err(|e| store_failed(&state, "get", e))?
+        .map_err(|e| state.store_failed("get", e))?
         .ok_or_else(not_found)?;
     Ok(json_text(StatusCode::OK, &[(header::ETAG, etag_header(record.id))], stored_record_body(&record)?))
 }
@@ -297,7 +285,7 @@ pub async fn get_snapshot(
     security((), ("bearer" = []))
 )]
 pub async fn get_underlyings(State(state): State<AppState>) -> Result<Response, ApiError> {
-    let list = state.store().underlyings().await.map_err(|e| store_failed(&state, "underlyings", e))?;
+    let list = state.store().underlyings().await.map_err(|e| state.store_failed("underlyings", e))?;
     Ok(Json(UnderlyingsDoc::from(list)).into_response())
 }
 
@@ -356,8 +344,8 @@ pub async fn get_latest(
     let wait = parse_wait(query_params(query)?.wait.as_deref())?;
     let client_tag = headers.get(header::IF_NONE_MATCH).and_then(|v| v.to_str().ok()).map(str::to_string);
     let deadline = Instant::now() + wait;
-    let mut changes = state.inner.changes.subscribe();
-    let mut shutting_down = state.inner.shutting_down.clone();
+    let mut changes = state.subscribe_changes();
+    let mut shutting_down = state.shutting_down();
     let not_found = || ApiError::NotFound(format!("no snapshot of underlying {underlying:?}"));
     loop {
         changes.borrow_and_update();
@@ -365,14 +353,14 @@ pub async fn get_latest(
             .store()
             .latest_id(&underlying)
             .await
-            .map_err(|e| store_failed(&state, "latest", e))?
+            .map_err(|e| state.store_failed("latest", e))?
             .ok_or_else(not_found)?;
         if !client_tag.as_deref().is_some_and(|t| if_none_match(t, &etag(id))) {
             let record = state
                 .store()
                 .latest(&underlying)
                 .await
-                .map_err(|e| store_failed(&state, "latest", e))?
+                .map_err(|e| state.store_failed("latest", e))?
                 .ok_or_else(not_found)?;
             return Ok(json_text(
                 StatusCode::OK,
@@ -397,22 +385,22 @@ pub async fn get_latest(
 
 /// Liveness: the process answers.
 #[utoipa::path(get, path = "/healthz", tag = "operations",
-    responses((status = 200, description = "Alive", body = docs::StatusDoc)))]
-pub async fn healthz() -> Json<docs::StatusDoc> {
-    Json(docs::StatusDoc { status: "ok".into() })
+    responses((status = 200, description = "Alive", body = StatusDoc)))]
+pub async fn healthz() -> Json<StatusDoc> {
+    Json(StatusDoc { status: "ok".into() })
 }
 
 /// Readiness: the store answers.
 #[utoipa::path(get, path = "/readyz", tag = "operations",
     responses(
-        (status = 200, description = "Ready", body = docs::StatusDoc),
+        (status = 200, description = "Ready", body = StatusDoc),
         (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
          headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
     ))]
-pub async fn readyz(State(state): State<AppState>) -> Result<Json<docs::StatusDoc>, ApiError> {
+pub async fn readyz(State(state): State<AppState>) -> Result<Json<StatusDoc>, ApiError> {
     match tokio::time::timeout(READY_TIMEOUT, state.store().ping()).await {
-        Ok(Ok(())) => Ok(Json(docs::StatusDoc { status: "ready".into() })),
-        Ok(Err(e)) => Err(ApiError::StoreUnavailable(store_failed(&state, "ping", e).to_string())),
+        Ok(Ok(())) => Ok(Json(StatusDoc { status: "ready".into() })),
+        Ok(Err(e)) => Err(ApiError::StoreUnavailable(state.store_failed("ping", e).to_string())),
         Err(_) => {
             state.metrics().store_error("ping");
             Err(ApiError::StoreUnavailable(format!("no answer within {} s", READY_TIMEOUT.as_secs())))
@@ -433,13 +421,6 @@ pub async fn get_metrics(State(state): State<AppState>) -> Response {
         state.metrics().render(),
     )
         .into_response()
-}
-
-/// This service's OpenAPI document.
-#[utoipa::path(get, path = "/openapi.json", tag = "operations",
-    responses((status = 200, description = "OpenAPI 3.1 document", body = Object)))]
-pub async fn get_openapi() -> Response {
-    ([(header::CONTENT_TYPE, HeaderValue::from_static("application/json"))], docs::openapi_json()).into_response()
 }
 
 /// Unknown paths.

@@ -3,8 +3,9 @@
 //! expiry).
 
 use super::error::{ApiError, ProblemDetails};
-use super::handlers::{query_params, rfc3339};
-use super::AppState;
+use super::query::query_params;
+use super::state::AppState;
+use super::timestamps::rfc3339;
 use crate::store::{HistoryPosition, HistoryQuery, Store, StoredSnapshot};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
@@ -312,10 +313,7 @@ pub async fn get_history(
         after: params.cursor.as_deref().map(decode_cursor).transpose()?,
         limit: parse_limit(params.limit.as_deref())?,
     };
-    let store_error = |e| {
-        state.metrics().store_error("history");
-        ApiError::from(e)
-    };
+    let store_error = |e| state.store_failed("history", e);
     // One row more than asked tells whether a next page exists.
     let mut records =
         state.store().history(&HistoryQuery { limit: query.limit + 1, ..query.clone() }).await.map_err(store_error)?;

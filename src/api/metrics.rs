@@ -2,7 +2,6 @@
 //! a global: request counts and latencies by route and status, analyses by outcome,
 //! fit durations, store errors.
 
-use super::AppState;
 use axum::extract::{MatchedPath, Request, State};
 use axum::middleware::Next;
 use axum::response::Response;
@@ -109,7 +108,7 @@ impl Metrics {
 }
 
 /// Middleware: counts and times every request by route template and status.
-pub async fn record(State(state): State<AppState>, request: Request, next: Next) -> Response {
+pub async fn record(State(metrics): State<Metrics>, request: Request, next: Next) -> Response {
     let started = Instant::now();
     let route = request
         .extensions()
@@ -119,7 +118,6 @@ pub async fn record(State(state): State<AppState>, request: Request, next: Next)
     let method = request.method().to_string();
     let response = next.run(request).await;
     let labels = RequestLabels { route, method, status: response.status().as_u16() };
-    let metrics = state.metrics();
     metrics.requests.get_or_create(&labels).inc();
     metrics.latency.get_or_create(&labels).observe(started.elapsed().as_secs_f64());
     response

@@ -8,79 +8,36 @@
 
 pub mod auth;
 pub mod body;
-pub mod charts;
-pub mod docs;
+pub mod chart_endpoints;
 pub mod error;
+pub mod examples;
 pub mod handlers;
 pub mod history;
 pub mod metrics;
-pub mod risk;
+pub mod openapi;
+pub mod query;
+pub mod responses;
+pub mod state;
+pub mod timestamps;
+pub mod valuation_endpoints;
+
+pub use handlers::{MAX_WAIT_SECONDS, WAIT_RECHECK};
+pub use state::{AppState, ServiceSettings};
 
 use crate::store::AnyStore;
-use auth::Access;
 use axum::extract::DefaultBodyLimit;
 use axum::routing::{get, post};
 use axum::Router;
 use std::net::SocketAddr;
-use std::sync::Arc;
 use std::time::Duration;
 use tokio::net::TcpListener;
 use tokio::sync::watch;
 
-/// Longest `?wait` a reader may ask for on `latest`, seconds.
-pub const MAX_WAIT_SECONDS: u64 = 60;
 /// Default request body limit, bytes (16 MiB).
 pub const DEFAULT_MAX_BODY: usize = 16 * 1024 * 1024;
 /// Default limit on the whole handling of a request; above [`MAX_WAIT_SECONDS`] so a
 /// long poll ends by itself first.
 pub const DEFAULT_REQUEST_TIMEOUT: Duration = Duration::from_secs(75);
-/// Long-polling readers re-check the store at least this often, in case a
-/// notification from another replica was lost.
-pub const WAIT_RECHECK: Duration = Duration::from_secs(5);
-
-/// What the service needs besides the store.
-#[derive(Debug, Clone)]
-pub struct ServiceSettings {
-    /// Tokens for writes and reads.
-    pub access: Access,
-    /// Request body limit, bytes.
-    pub max_body: usize,
-    /// Limit on handling one request.
-    pub request_timeout: Duration,
-}
-
-/// Shared state of the handlers.
-#[derive(Clone)]
-pub struct AppState {
-    inner: Arc<Shared>,
-}
-
-struct Shared {
-    store: AnyStore,
-    settings: ServiceSettings,
-    metrics: metrics::Metrics,
-    /// Bumped whenever a snapshot is stored (here or, via the store's notifications,
-    /// by another replica); long-polling readers wait on it.
-    changes: watch::Sender<u64>,
-    /// Becomes `true` when shutdown starts; long polls end early.
-    shutting_down: watch::Receiver<bool>,
-}
-
-impl AppState {
-    fn store(&self) -> &AnyStore {
-        &self.inner.store
-    }
-    fn metrics(&self) -> &metrics::Metrics {
-        &self.inner.metrics
-    }
-    fn settings(&self) -> &ServiceSettings {
-        &self.inner.settings
-    }
-    /// Tells long-polling readers that something was stored.
-    fn announce_change(&self) {
-        self.inner.changes.send_modify(|generation| *generation = generation.wrapping_add(1));
-    }
-}
 
 /// The routes, with body limit, auth, metrics and the request time limit.
 pub fn router(state: AppState) -> Router {
@@ -90,24 +47,24 @@ pub fn router(state: AppState) -> Router {
         .route("/v1/snapshots/{id}", get(handlers::get_snapshot))
         .route("/v1/analyze", post(handlers::post_analyze))
         .route("/v1/fits", post(handlers::post_fit))
-        .route("/v1/valuations", post(risk::post_valuation))
-        .route("/v1/realized", post(risk::post_realized))
+        .route("/v1/valuations", post(valuation_endpoints::post_valuation))
+        .route("/v1/realized", post(valuation_endpoints::post_realized))
         .route("/v1/underlyings", get(handlers::get_underlyings))
         .route("/v1/underlyings/{underlying}/latest", get(handlers::get_latest))
         .route("/v1/underlyings/{underlying}/history", get(history::get_history))
-        .route("/v1/underlyings/{underlying}/latest/chart.svg", get(charts::get_latest_chart))
-        .route("/v1/underlyings/{underlying}/history/chart.svg", get(charts::get_history_chart))
-        .route("/", get(charts::get_overview))
+        .route("/v1/underlyings/{underlying}/latest/chart.svg", get(chart_endpoints::get_latest_chart))
+        .route("/v1/underlyings/{underlying}/history/chart.svg", get(chart_endpoints::get_history_chart))
+        .route("/", get(chart_endpoints::get_overview))
         .route("/healthz", get(handlers::healthz))
         .route("/readyz", get(handlers::readyz))
         .route("/metrics", get(handlers::get_metrics))
-        .route("/openapi.json", get(handlers::get_openapi))
+        .route("/openapi.json", get(openapi::get_openapi))
         .fallback(handlers::not_found)
         .method_not_allowed_fallback(handlers::method_not_allowed)
-        .layer(axum::middleware::from_fn_with_state(state.clone(), auth::require_token))
+        .layer(axum::middleware::from_fn_with_state(state.settings().access.clone(), auth::require_token))
         .layer(axum::middleware::from_fn_with_state(state.clone(), handlers::limit_time))
         .layer(DefaultBodyLimit::max(max_body))
-        .layer(axum::middleware::from_fn_with_state(state.clone(), metrics::record))
+        .layer(axum::middleware::from_fn_with_state(state.metrics().clone(), metrics::record))
         .with_state(state)
 }
 
@@ -149,16 +106,7 @@ pub fn start(
 ) -> std::io::Result<RunningServer> {
     let addr = listener.local_addr()?;
     let (shutdown_tx, shutdown_rx) = watch::channel(false);
-    let (changes, _) = watch::channel(0u64);
-    let state = AppState {
-        inner: Arc::new(Shared {
-            store: store.clone(),
-            settings,
-            metrics: metrics::Metrics::new(),
-            changes,
-            shutting_down: shutdown_rx.clone(),
-        }),
-    };
+    let state = AppState::new(store.clone(), settings, shutdown_rx.clone());
     if let Some(url) = store.listen_url() {
         tokio::spawn(handlers::forward_store_notifications(url, state.clone(), shutdown_rx.clone()));
     }

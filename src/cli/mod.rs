@@ -7,7 +7,6 @@ pub mod demo;
 pub mod serve;
 
 use crate::analytics::analysis::Analysis;
-use crate::analytics::calibrate::fit_leverage;
 use crate::wire::csv_input::{self, CsvHeader};
 use crate::wire::valuation::{self, BookDoc, ClosesDoc};
 use crate::wire::{self, output, InputErrors, SnapshotFormat};
@@ -139,7 +138,7 @@ pub fn run_analyze(
     if let Some(path) = svg {
         let points = term_points(&doc);
         let title = format!("{}  as of {}", doc.underlying, doc.as_of);
-        let chart = crate::charts::term_structure_svg(&title, &points)
+        let chart = crate::chart_drawing::term_structure_svg(&title, &points)
             .map_err(|e| CliError::Io { path: path.display().to_string(), source: std::io::Error::other(e) })?;
         std::fs::write(path, chart).map_err(|source| CliError::Io { path: path.display().to_string(), source })?;
     }
@@ -147,12 +146,12 @@ pub fn run_analyze(
 }
 
 /// The chart points of an analysis.
-fn term_points(doc: &output::AnalysisDoc) -> Vec<crate::charts::TermPoint> {
+fn term_points(doc: &output::AnalysisDoc) -> Vec<crate::chart_drawing::TermPoint> {
     let model = doc.fit.as_ref().map(|f| f.model_leverage_swap.as_slice()).unwrap_or(&[]);
     doc.curve
         .iter()
         .enumerate()
-        .map(|(i, c)| crate::charts::TermPoint {
+        .map(|(i, c)| crate::chart_drawing::TermPoint {
             tau: c.tau,
             variance_swap: c.variance_swap,
             gamma_swap: c.gamma_swap,
@@ -213,10 +212,8 @@ pub fn run_realized(
 /// # Errors
 /// [`CliError`] for unreadable or invalid input.
 pub fn run_fit(input: &Path, pretty: bool, out: &mut dyn Write) -> Result<(), CliError> {
-    let text = read_input(input)?;
-    let swaps = wire::parse_swaps(&text)?;
-    let fit = swaps.fit.as_ref().map(|spec| fit_leverage(&swaps.target, spec));
-    write_json(&output::swaps_doc(&swaps, fit.as_ref()), pretty, out)
+    let doc = wire::fit_swap_levels(&read_input(input)?)?;
+    write_json(&doc, pretty, out)
 }
 
 /// `logstrip openapi`: the service's OpenAPI document (what `GET /openapi.json` serves).
@@ -224,6 +221,6 @@ pub fn run_fit(input: &Path, pretty: bool, out: &mut dyn Write) -> Result<(), Cl
 /// # Errors
 /// [`CliError::Io`] when standard output cannot be written.
 pub fn run_openapi(out: &mut dyn Write) -> Result<(), CliError> {
-    out.write_all(crate::api::docs::openapi_json().as_bytes())
+    out.write_all(crate::api::openapi::openapi_json().as_bytes())
         .map_err(|source| CliError::Io { path: "stdout".into(), source })
 }

@@ -144,111 +144,38 @@ fn column_path(line: usize, rest: &[Segment]) -> FieldPath {
     }
 }
 
+/// The rows of one expiry of a CSV snapshot, gathered into a slice.
+struct ExpiryRows {
+    /// `expiry:<text>` or `tau:<number>`: rows with the same key are one expiry.
+    key: String,
+    expiry: Option<String>,
+    tau: Option<f64>,
+    forward: Option<f64>,
+    discount: Option<f64>,
+    points: Vec<PointDoc>,
+    prices: Vec<PriceDoc>,
+    first_line: usize,
+    /// The line of each quote.
+    lines: Vec<usize>,
+}
+
 /// Builds the snapshot document of a CSV table.
 fn snapshot_doc(text: &str, header: &CsvHeader) -> Result<(SnapshotDoc, Origins), InputErrors> {
     let mut allowed: Vec<&str> = SNAPSHOT_COLUMNS.to_vec();
     allowed.push(DISCOUNT);
     let table = read_table(text, &allowed)?;
-    let col = |n: &str| table.column(n);
+    check_columns(&table)?;
+    let by_vol = table.column("vol").is_some();
     let mut problems = Vec::new();
-    if col("strike").is_none() {
-        problems.push(Problem { path: FieldPath::csv(1, None), message: "needs a strike column".into() });
-    }
-    if col("expiry").is_none() && col("tau").is_none() {
-        problems.push(Problem { path: FieldPath::csv(1, None), message: "needs an expiry or a tau column".into() });
-    }
-    let by_vol = col("vol").is_some();
-    if !by_vol && col("call").is_none() && col("put").is_none() {
-        problems.push(Problem {
-            path: FieldPath::csv(1, None),
-            message: "needs a vol column, or call and put columns".into(),
-        });
-    }
-    if by_vol && (col("call").is_some() || col("put").is_some()) {
-        problems
-            .push(Problem { path: FieldPath::csv(1, None), message: "give vol or call/put columns, not both".into() });
-    }
-    if table.rows.is_empty() {
-        problems.push(Problem { path: FieldPath::csv(2, None), message: "no quotes".into() });
-    }
-    if !problems.is_empty() {
-        return Err(InputErrors::from_problems(problems));
-    }
     let mut underlying = header.underlying.clone();
     let mut as_of = header.as_of.clone();
-    struct Group {
-        key: String,
-        expiry: Option<String>,
-        tau: Option<f64>,
-        forward: Option<f64>,
-        discount: Option<f64>,
-        points: Vec<PointDoc>,
-        prices: Vec<PriceDoc>,
-        first_line: usize,
-        lines: Vec<usize>,
-    }
-    let mut groups: Vec<Group> = Vec::new();
+    let mut groups: Vec<ExpiryRows> = Vec::new();
     for (line, row) in &table.rows {
         let line = *line;
-        constant(&mut underlying, text_cell(row, col("underlying")), line, "underlying", &mut problems);
-        constant(&mut as_of, text_cell(row, col("as_of")), line, "as_of", &mut problems);
-        let expiry = text_cell(row, col("expiry"));
-        let tau = number(row, col("tau"), line, "tau", &mut problems);
-        let key = match (&expiry, tau) {
-            (Some(e), None) => format!("expiry:{e}"),
-            (None, Some(t)) => format!("tau:{t}"),
-            (Some(_), Some(_)) => {
-                problems.push(Problem {
-                    path: FieldPath::csv(line, Some("tau")),
-                    message: "give expiry or tau, not both".into(),
-                });
-                continue;
-            }
-            (None, None) => {
-                problems
-                    .push(Problem { path: FieldPath::csv(line, Some("expiry")), message: "give expiry or tau".into() });
-                continue;
-            }
-        };
-        let index = match groups.iter().position(|g| g.key == key) {
-            Some(i) => i,
-            None => {
-                groups.push(Group {
-                    key,
-                    expiry: expiry.clone(),
-                    tau,
-                    forward: None,
-                    discount: None,
-                    points: Vec::new(),
-                    prices: Vec::new(),
-                    first_line: line,
-                    lines: Vec::new(),
-                });
-                groups.len() - 1
-            }
-        };
-        let g = &mut groups[index];
-        let forward = number(row, col("forward"), line, "forward", &mut problems);
-        constant(&mut g.forward, forward, line, "forward", &mut problems);
-        let discount = number(row, col(DISCOUNT), line, DISCOUNT, &mut problems);
-        constant(&mut g.discount, discount, line, DISCOUNT, &mut problems);
-        let Some(strike) = number(row, col("strike"), line, "strike", &mut problems) else {
-            problems.push(Problem { path: FieldPath::csv(line, Some("strike")), message: "missing".into() });
-            continue;
-        };
-        g.lines.push(line);
-        if by_vol {
-            let Some(vol) = number(row, col("vol"), line, "vol", &mut problems) else {
-                problems.push(Problem { path: FieldPath::csv(line, Some("vol")), message: "missing".into() });
-                continue;
-            };
-            let bid = number(row, col("bid"), line, "bid", &mut problems);
-            let ask = number(row, col("ask"), line, "ask", &mut problems);
-            g.points.push(PointDoc { strike, vol, bid, ask });
-        } else {
-            let call = number(row, col("call"), line, "call", &mut problems);
-            let put = number(row, col("put"), line, "put", &mut problems);
-            g.prices.push(PriceDoc { strike, call, put });
+        constant(&mut underlying, text_cell(row, table.column("underlying")), line, "underlying", &mut problems);
+        constant(&mut as_of, text_cell(row, table.column("as_of")), line, "as_of", &mut problems);
+        if let Some(index) = expiry_of_row(&table, row, line, &mut groups, &mut problems) {
+            add_quote(&table, row, line, by_vol, &mut groups[index], &mut problems);
         }
     }
     if underlying.is_none() {
@@ -264,8 +191,9 @@ fn snapshot_doc(text: &str, header: &CsvHeader) -> Result<(SnapshotDoc, Origins)
         });
     }
     if let Some(first_extra) = groups.get(MAX_EXPIRIES) {
+        let column = if table.column("expiry").is_some() { "expiry" } else { "tau" };
         problems.push(Problem {
-            path: FieldPath::csv(first_extra.first_line, Some(if col("expiry").is_some() { "expiry" } else { "tau" })),
+            path: FieldPath::csv(first_extra.first_line, Some(column)),
             message: too_many_expiries(groups.len()),
         });
     }
@@ -293,6 +221,116 @@ fn snapshot_doc(text: &str, header: &CsvHeader) -> Result<(SnapshotDoc, Origins)
         fit: None,
     };
     Ok((doc, origins))
+}
+
+/// The columns a snapshot table needs (a strike, an expiry or a tau, and vols or
+/// prices, not both) and at least one quote.
+fn check_columns(table: &Table) -> Result<(), InputErrors> {
+    let col = |n: &str| table.column(n);
+    let mut problems = Vec::new();
+    if col("strike").is_none() {
+        problems.push(Problem { path: FieldPath::csv(1, None), message: "needs a strike column".into() });
+    }
+    if col("expiry").is_none() && col("tau").is_none() {
+        problems.push(Problem { path: FieldPath::csv(1, None), message: "needs an expiry or a tau column".into() });
+    }
+    let by_vol = col("vol").is_some();
+    if !by_vol && col("call").is_none() && col("put").is_none() {
+        problems.push(Problem {
+            path: FieldPath::csv(1, None),
+            message: "needs a vol column, or call and put columns".into(),
+        });
+    }
+    if by_vol && (col("call").is_some() || col("put").is_some()) {
+        problems
+            .push(Problem { path: FieldPath::csv(1, None), message: "give vol or call/put columns, not both".into() });
+    }
+    if table.rows.is_empty() {
+        problems.push(Problem { path: FieldPath::csv(2, None), message: "no quotes".into() });
+    }
+    if problems.is_empty() {
+        Ok(())
+    } else {
+        Err(InputErrors::from_problems(problems))
+    }
+}
+
+/// The index in `groups` of the expiry of a row (a new group for a new expiry); `None`,
+/// with a problem, when the row gives neither or both of expiry and tau.
+fn expiry_of_row(
+    table: &Table,
+    row: &[String],
+    line: usize,
+    groups: &mut Vec<ExpiryRows>,
+    problems: &mut Vec<Problem>,
+) -> Option<usize> {
+    let expiry = text_cell(row, table.column("expiry"));
+    let tau = number(row, table.column("tau"), line, "tau", problems);
+    let key = match (&expiry, tau) {
+        (Some(e), None) => format!("expiry:{e}"),
+        (None, Some(t)) => format!("tau:{t}"),
+        (Some(_), Some(_)) => {
+            problems.push(Problem {
+                path: FieldPath::csv(line, Some("tau")),
+                message: "give expiry or tau, not both".into(),
+            });
+            return None;
+        }
+        (None, None) => {
+            problems.push(Problem { path: FieldPath::csv(line, Some("expiry")), message: "give expiry or tau".into() });
+            return None;
+        }
+    };
+    if let Some(i) = groups.iter().position(|g| g.key == key) {
+        return Some(i);
+    }
+    groups.push(ExpiryRows {
+        key,
+        expiry,
+        tau,
+        forward: None,
+        discount: None,
+        points: Vec::new(),
+        prices: Vec::new(),
+        first_line: line,
+        lines: Vec::new(),
+    });
+    Some(groups.len() - 1)
+}
+
+/// Adds a row's forward, discount and quote (a vol with its bid and ask, or call and put
+/// prices) to its expiry.
+fn add_quote(
+    table: &Table,
+    row: &[String],
+    line: usize,
+    by_vol: bool,
+    group: &mut ExpiryRows,
+    problems: &mut Vec<Problem>,
+) {
+    let cell = |name: &str, problems: &mut Vec<Problem>| number(row, table.column(name), line, name, problems);
+    let forward = cell("forward", problems);
+    constant(&mut group.forward, forward, line, "forward", problems);
+    let discount = cell(DISCOUNT, problems);
+    constant(&mut group.discount, discount, line, DISCOUNT, problems);
+    let Some(strike) = cell("strike", problems) else {
+        problems.push(Problem { path: FieldPath::csv(line, Some("strike")), message: "missing".into() });
+        return;
+    };
+    group.lines.push(line);
+    if by_vol {
+        let Some(vol) = cell("vol", problems) else {
+            problems.push(Problem { path: FieldPath::csv(line, Some("vol")), message: "missing".into() });
+            return;
+        };
+        let bid = cell("bid", problems);
+        let ask = cell("ask", problems);
+        group.points.push(PointDoc { strike, vol, bid, ask });
+    } else {
+        let call = cell("call", problems);
+        let put = cell("put", problems);
+        group.prices.push(PriceDoc { strike, call, put });
+    }
 }
 
 /// Parses and validates a CSV snapshot; problems name line and column.

@@ -413,6 +413,58 @@ fn slice_problem(e: SliceError, slice_path: &FieldPath, quotes_field: &str, prob
     }
 }
 
+/// One slice built from its points or prices; `None`, with its problems, when it cannot
+/// be. A missing `tau` was reported already: the rest is validated with a placeholder.
+fn build_slice(s: &SliceDoc, tau: Option<f64>, path: &FieldPath, problems: &mut Problems) -> Option<Slice> {
+    let discount = s.discount.unwrap_or(1.0);
+    let built = match (&s.points, &s.prices) {
+        (Some(_), Some(_)) => {
+            problems.push(path.field("prices"), "give points or prices, not both");
+            return None;
+        }
+        (None, None) => {
+            problems.push(path.field("points"), "give points (implied vols) or prices (call/put mids)");
+            return None;
+        }
+        (Some(points), None) => {
+            let Some(forward) = s.forward else {
+                problems.push(path.field("forward"), "required with points (it can be implied only from prices)");
+                return None;
+            };
+            let quotes: Vec<VolQuote> =
+                points.iter().map(|p| VolQuote { strike: p.strike, vol: p.vol, bid: p.bid, ask: p.ask }).collect();
+            Slice::from_vols(tau.unwrap_or(1.0), forward, discount, &quotes).map_err(|e| (e, "points"))
+        }
+        (None, Some(prices)) => {
+            let quotes: Vec<PriceQuote> =
+                prices.iter().map(|p| PriceQuote { strike: p.strike, call: p.call, put: p.put }).collect();
+            Slice::from_prices(tau.unwrap_or(1.0), s.forward, discount, &quotes).map_err(|e| (e, "prices"))
+        }
+    };
+    match built {
+        Ok(slice) => Some(slice),
+        Err((errors, field)) => {
+            for e in errors {
+                slice_problem(e, path, field, problems);
+            }
+            None
+        }
+    }
+}
+
+/// Reports the entries of `list` with the same time to expiry to within a millisecond,
+/// at the later index; `sorted` holds each entry's time to expiry and index, in time
+/// order.
+fn same_expiries(sorted: &[(f64, usize)], list: &str, problems: &mut Problems) {
+    let root = FieldPath::root().field(list);
+    for pair in sorted.windows(2) {
+        if (pair[1].0 - pair[0].0).abs() < 1e-3 / (365.0 * 86_400.0) {
+            let (first, second) = (pair[0].1.min(pair[1].1), pair[0].1.max(pair[1].1));
+            problems.push(root.index(second).field("tau"), format!("same expiry as {list}[{first}]"));
+        }
+    }
+}
+
 /// Parses and validates a snapshot document.
 ///
 /// # Errors
@@ -441,55 +493,13 @@ pub fn validate_snapshot(doc: &SnapshotDoc) -> Result<ValidSnapshot, InputErrors
     for (i, s) in doc.slices.iter().enumerate() {
         let path = root.field("slices").index(i);
         let tau = resolve_tau(s.expiry.as_deref(), s.tau, as_of, &path, &mut problems);
-        let discount = s.discount.unwrap_or(1.0);
-        let built = match (&s.points, &s.prices) {
-            (Some(_), Some(_)) => {
-                problems.push(path.field("prices"), "give points or prices, not both");
-                continue;
-            }
-            (None, None) => {
-                problems.push(path.field("points"), "give points (implied vols) or prices (call/put mids)");
-                continue;
-            }
-            (Some(points), None) => {
-                let Some(forward) = s.forward else {
-                    problems.push(path.field("forward"), "required with points (it can be implied only from prices)");
-                    continue;
-                };
-                let quotes: Vec<VolQuote> =
-                    points.iter().map(|p| VolQuote { strike: p.strike, vol: p.vol, bid: p.bid, ask: p.ask }).collect();
-                // A missing tau was reported already; validate the rest with a placeholder.
-                Slice::from_vols(tau.unwrap_or(1.0), forward, discount, &quotes).map_err(|e| (e, "points"))
-            }
-            (None, Some(prices)) => {
-                let quotes: Vec<PriceQuote> =
-                    prices.iter().map(|p| PriceQuote { strike: p.strike, call: p.call, put: p.put }).collect();
-                Slice::from_prices(tau.unwrap_or(1.0), s.forward, discount, &quotes).map_err(|e| (e, "prices"))
-            }
-        };
-        match built {
-            Ok(slice) => {
-                if let Some(t) = tau {
-                    taus.push((t, i));
-                    slices.push(slice);
-                }
-            }
-            Err((errors, field)) => {
-                for e in errors {
-                    slice_problem(e, &path, field, &mut problems);
-                }
-            }
+        if let (Some(slice), Some(t)) = (build_slice(s, tau, &path, &mut problems), tau) {
+            taus.push((t, i));
+            slices.push(slice);
         }
     }
-    // Duplicate expiries: the same time to expiry to within a millisecond.
-    let mut sorted = taus.clone();
-    sorted.sort_by(|a, b| a.0.total_cmp(&b.0));
-    for pair in sorted.windows(2) {
-        if (pair[1].0 - pair[0].0).abs() < 1e-3 / (365.0 * 86_400.0) {
-            let (first, second) = (pair[0].1.min(pair[1].1), pair[0].1.max(pair[1].1));
-            problems.push(root.field("slices").index(second).field("tau"), format!("same expiry as slices[{first}]"));
-        }
-    }
+    taus.sort_by(|a, b| a.0.total_cmp(&b.0));
+    same_expiries(&taus, "slices", &mut problems);
     let smile = match doc.smile {
         Some(SmileMethodDoc::Monotone) => SmileMethod::Monotone,
         Some(SmileMethodDoc::SviSpline) => SmileMethod::SviSpline,
@@ -561,12 +571,8 @@ pub fn parse_swaps(text: &str) -> Result<ValidSwaps, InputErrors> {
         }
     }
     rows.sort_by(|a, b| a.0.total_cmp(&b.0));
-    for pair in rows.windows(2) {
-        if (pair[1].0 - pair[0].0).abs() < 1e-3 / (365.0 * 86_400.0) {
-            let (first, second) = (pair[0].5.min(pair[1].5), pair[0].5.max(pair[1].5));
-            problems.push(root.field("swaps").index(second).field("tau"), format!("same expiry as swaps[{first}]"));
-        }
-    }
+    let taus: Vec<(f64, usize)> = rows.iter().map(|r| (r.0, r.5)).collect();
+    same_expiries(&taus, "swaps", &mut problems);
     let fit = fit_spec(doc.fit.as_ref(), &mut problems);
     let Some(as_of) = as_of else {
         return Err(InputErrors::from_problems(problems.0));

@@ -1,6 +1,8 @@
-//! The JSON formats of logstrip: raw input types as users write them, their
+//! The JSON and CSV formats of logstrip: raw input types as users write them, their
 //! validation into analytics types (every problem named by its field path), and
-//! the output types. Shared by the command line and the service.
+//! the output types. Shared by the command line and the service, which reach the
+//! analysis of a snapshot ([`parse_snapshot_as`], [`analyze_valid`]) and the fit of
+//! swap levels ([`fit_swap_levels`]) through the same functions here.
 
 pub mod csv_input;
 pub mod input;
@@ -13,6 +15,7 @@ pub use input::{parse_snapshot, parse_swaps, ValidSnapshot, ValidSwaps};
 pub use path::{FieldPath, InputErrors, Problem};
 
 use crate::analytics::analysis::{analyze, Analysis};
+use crate::analytics::calibrate::fit_leverage;
 
 /// How a snapshot is written.
 #[derive(Debug, Clone)]
@@ -122,4 +125,17 @@ pub fn analyze_valid(snapshot: ValidSnapshot) -> Result<(ValidSnapshot, Analysis
 /// [`InputErrors`] for invalid input (duplicate expiries and unusable smiles included).
 pub fn analyze_text(text: &str) -> Result<(ValidSnapshot, Analysis), InputErrors> {
     analyze_valid(parse_snapshot(text)?)
+}
+
+/// Parses and validates a swap-levels document, fits the model when the document asks
+/// for a fit, and returns the output document: the one fit path of `logstrip fit` and
+/// `POST /v1/fits`. CPU work of up to milliseconds: run it off async threads.
+///
+/// # Errors
+/// [`InputErrors`] for invalid input. A fit that stops short of convergence is not an
+/// error: its status is in the document.
+pub fn fit_swap_levels(text: &str) -> Result<output::AnalysisDoc, InputErrors> {
+    let swaps = parse_swaps(text)?;
+    let fit = swaps.fit.as_ref().map(|spec| fit_leverage(&swaps.target, spec));
+    Ok(output::swaps_doc(&swaps, fit.as_ref()))
 }

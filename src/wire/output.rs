@@ -1,7 +1,7 @@
 //! Output documents: the analysis of a snapshot and the fit of swap levels.
 
 use super::input::{ValidSnapshot, ValidSwaps};
-use crate::analytics::analysis::Analysis;
+use crate::analytics::analysis::{Analysis, SliceAnalysis};
 use crate::analytics::calibrate::{DownWeightReason, FitOutcome, FitStatus, ModelKind};
 use crate::analytics::smile::SmileCurve;
 use serde::Serialize;
@@ -334,73 +334,7 @@ pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitResultDoc {
 
 /// The output of `logstrip analyze`.
 pub fn analysis_doc(input: &ValidSnapshot, analysis: &Analysis) -> AnalysisDoc {
-    let curve = analysis
-        .slices
-        .iter()
-        .map(|s| {
-            let l = s.replication.levels;
-            CurveDoc {
-                tau: s.tau,
-                expiry: input.expiries.get(s.input_index).cloned().flatten(),
-                forward: Some(s.forward),
-                discount: Some(s.discount),
-                variance_swap: l.variance,
-                variance_swap_vol: vol_of(l.variance),
-                gamma_swap: l.gamma,
-                gamma_swap_vol: vol_of(l.gamma),
-                leverage_swap: l.leverage,
-                variance_swap_se: s.level_errors.map(|e| e.total()[0]),
-                gamma_swap_se: s.level_errors.map(|e| e.total()[1]),
-                leverage_swap_se: s.level_errors.map(|e| e.total()[2]),
-                forward_variance: s.forward_variance,
-                quality: Some(QualityDoc {
-                    points: s.points,
-                    excluded_points: s.smile.excluded.len(),
-                    wing_share: s.replication.wing_share,
-                    smile_rmse_vol: s.smile.rmse_vol,
-                    integration_error: s.replication.error.variance,
-                    butterfly_ok: s.butterfly.is_none(),
-                    calendar_ok: s.calendar_ok,
-                    warnings: s.warnings.clone(),
-                    flagged_quotes: s
-                        .flagged_quotes
-                        .iter()
-                        .map(|f| FlaggedQuoteDoc {
-                            strike: f.strike,
-                            vol: f.vol,
-                            fitted_vol: f.fitted_vol,
-                            half_spreads: f.half_spread.filter(|h| *h > 0.0).map(|h| (f.vol - f.fitted_vol).abs() / h),
-                            reason: match f.reason {
-                                crate::analytics::analysis::FlagReason::LeftOut => FlagReasonDoc::LeftOut,
-                                crate::analytics::analysis::FlagReason::Suspect => FlagReasonDoc::Suspect,
-                            },
-                        })
-                        .collect(),
-                }),
-                smile: Some(match &s.smile.curve {
-                    SmileCurve::Svi(p) => SmileDoc::Svi { a: p.a, b: p.b, rho: p.rho, m: p.m, sigma: p.sigma },
-                    SmileCurve::SviSpline(c) => {
-                        let p = c.svi;
-                        let (l, r) = c.wing_slopes();
-                        let edges = c.edges();
-                        SmileDoc::SviSpline {
-                            a: p.a,
-                            b: p.b,
-                            rho: p.rho,
-                            m: p.m,
-                            sigma: p.sigma,
-                            wing_edges: [edges[0], edges[1]],
-                            wing_slopes: [l, r],
-                        }
-                    }
-                    SmileCurve::Monotone(m) => {
-                        let (l, r) = m.wing_slopes();
-                        SmileDoc::Monotone { nodes: m.nodes().len(), wing_slopes: [l, r] }
-                    }
-                }),
-            }
-        })
-        .collect();
+    let curve = analysis.slices.iter().map(|s| curve_point(input, s)).collect();
     let nu = input.options.fit.as_ref().and_then(|f| f.nu);
     AnalysisDoc {
         underlying: input.underlying.clone(),
@@ -413,6 +347,82 @@ pub fn analysis_doc(input: &ValidSnapshot, analysis: &Analysis) -> AnalysisDoc {
         }),
         curve,
         fit: analysis.fit.as_ref().map(|f| fit_doc(f, nu)),
+    }
+}
+
+/// One expiry of an analysis: its swap levels with their standard errors, forward
+/// variance, quality and smile.
+fn curve_point(input: &ValidSnapshot, s: &SliceAnalysis) -> CurveDoc {
+    let l = s.replication.levels;
+    CurveDoc {
+        tau: s.tau,
+        expiry: input.expiries.get(s.input_index).cloned().flatten(),
+        forward: Some(s.forward),
+        discount: Some(s.discount),
+        variance_swap: l.variance,
+        variance_swap_vol: vol_of(l.variance),
+        gamma_swap: l.gamma,
+        gamma_swap_vol: vol_of(l.gamma),
+        leverage_swap: l.leverage,
+        variance_swap_se: s.level_errors.map(|e| e.total()[0]),
+        gamma_swap_se: s.level_errors.map(|e| e.total()[1]),
+        leverage_swap_se: s.level_errors.map(|e| e.total()[2]),
+        forward_variance: s.forward_variance,
+        quality: Some(quality_doc(s)),
+        smile: Some(smile_doc(&s.smile.curve)),
+    }
+}
+
+/// How far one expiry's levels can be trusted.
+fn quality_doc(s: &SliceAnalysis) -> QualityDoc {
+    QualityDoc {
+        points: s.points,
+        excluded_points: s.smile.excluded.len(),
+        wing_share: s.replication.wing_share,
+        smile_rmse_vol: s.smile.rmse_vol,
+        integration_error: s.replication.error.variance,
+        butterfly_ok: s.butterfly.is_none(),
+        calendar_ok: s.calendar_ok,
+        warnings: s.warnings.clone(),
+        flagged_quotes: s
+            .flagged_quotes
+            .iter()
+            .map(|f| FlaggedQuoteDoc {
+                strike: f.strike,
+                vol: f.vol,
+                fitted_vol: f.fitted_vol,
+                half_spreads: f.half_spread.filter(|h| *h > 0.0).map(|h| (f.vol - f.fitted_vol).abs() / h),
+                reason: match f.reason {
+                    crate::analytics::analysis::FlagReason::LeftOut => FlagReasonDoc::LeftOut,
+                    crate::analytics::analysis::FlagReason::Suspect => FlagReasonDoc::Suspect,
+                },
+            })
+            .collect(),
+    }
+}
+
+/// The fitted smile's parameters.
+fn smile_doc(curve: &SmileCurve) -> SmileDoc {
+    match curve {
+        SmileCurve::Svi(p) => SmileDoc::Svi { a: p.a, b: p.b, rho: p.rho, m: p.m, sigma: p.sigma },
+        SmileCurve::SviSpline(c) => {
+            let p = c.svi;
+            let (l, r) = c.wing_slopes();
+            let edges = c.edges();
+            SmileDoc::SviSpline {
+                a: p.a,
+                b: p.b,
+                rho: p.rho,
+                m: p.m,
+                sigma: p.sigma,
+                wing_edges: [edges[0], edges[1]],
+                wing_slopes: [l, r],
+            }
+        }
+        SmileCurve::Monotone(m) => {
+            let (l, r) = m.wing_slopes();
+            SmileDoc::Monotone { nodes: m.nodes().len(), wing_slopes: [l, r] }
+        }
     }
 }
 

@@ -1,12 +1,13 @@
-//! Charts and the overview page: `GET /v1/underlyings/{u}/latest/chart.svg`,
+//! Serves the charts drawn by [`crate::chart_drawing`] and the overview page:
+//! `GET /v1/underlyings/{u}/latest/chart.svg`,
 //! `GET /v1/underlyings/{u}/history/chart.svg?param=..`, and `GET /` (plain HTML,
 //! CSS and a little script served by the binary; no build step, nothing external).
 
 use super::error::{ApiError, ProblemDetails};
-use super::handlers::query_params;
-use super::history::{history_item, HistoryItem};
-use super::AppState;
-use crate::charts::{parameter_history_svg, term_structure_svg, TermPoint};
+use super::history::{history_item, HistoryFit, HistoryItem};
+use super::query::query_params;
+use super::state::AppState;
+use crate::chart_drawing::{parameter_history_svg, term_structure_svg, TermPoint};
 use crate::store::{HistoryQuery, Store};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
@@ -48,7 +49,7 @@ fn svg_response(svg: String, etag: Option<HeaderValue>) -> Response {
     response
 }
 
-fn chart_failed(e: crate::charts::ChartError) -> ApiError {
+fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
     ApiError::Internal(e.to_string())
 }
 
@@ -74,10 +75,7 @@ pub async fn get_latest_chart(
         .store()
         .latest(&underlying)
         .await
-        .map_err(|e| {
-            state.metrics().store_error("latest");
-            ApiError::from(e)
-        })?
+        .map_err(|e| state.store_failed("latest", e))?
         .ok_or_else(|| ApiError::NotFound(format!("no snapshot of underlying {underlying:?}")))?;
     let item = history_item(&record)?;
     let title = format!("{underlying}  as of {}  (snapshot {})", item.as_of, item.id);
@@ -130,7 +128,7 @@ pub async fn get_history_chart(
 ) -> Result<Response, ApiError> {
     let query = query_params(query)?;
     let param = query.param.as_deref().unwrap_or("hurst");
-    let pick: fn(&super::history::HistoryFit) -> Option<f64> = match param {
+    let pick: fn(&HistoryFit) -> Option<f64> = match param {
         "hurst" => |f| f.hurst,
         "rho_nu" => |f| f.rho_nu,
         "mean_reversion" => |f| f.mean_reversion,
@@ -149,10 +147,7 @@ pub async fn get_history_chart(
         after: None,
         limit: MAX_HISTORY_POINTS,
     };
-    let records = state.store().history(&history).await.map_err(|e| {
-        state.metrics().store_error("history");
-        ApiError::from(e)
-    })?;
+    let records = state.store().history(&history).await.map_err(|e| state.store_failed("history", e))?;
     let mut values = Vec::new();
     for record in &records {
         if let Some(v) = history_item(record)?.fit.as_ref().and_then(pick) {

@@ -500,62 +500,10 @@ pub fn explain(
     let scale = notional_scale(later);
     let at_earlier_discount = scale * e.discount;
     let realized_accrual = at_earlier_discount * (l.past_weight * l.accrued - e.past_weight * e.accrued);
-    let n = later_market.expiries.len();
     let (time_decay, spot, vega_by_expiry) = if later.maturity > 0.0 {
-        let earlier_term =
-            TermStructure::new(&earlier_market.expiries, &earlier_market.variance_swap, &earlier_market.gamma_swap)?;
-        let later_term =
-            TermStructure::new(&later_market.expiries, &later_market.variance_swap, &later_market.gamma_swap)?;
-        let from = later.start.max(0.0);
-        // The earlier market's implied quantity of the later remaining period.
-        let (rolled, _) =
-            remaining_quantity(later.kind, &earlier_term, from + elapsed, later.maturity + elapsed, e.spot_ratio)?;
-        let (later_at_earlier_spot, _) =
-            remaining_quantity(later.kind, &later_term, from, later.maturity, e.spot_ratio)?;
-        let time_decay = at_earlier_discount * (l.future_weight * rolled - e.future_weight * e.remaining);
-        let spot = at_earlier_discount * l.future_weight * (l.remaining - later_at_earlier_spot);
-        // The earlier market's levels at the later expiries, seen from the later time.
-        let earlier_last = earlier_market.expiries[earlier_market.expiries.len() - 1];
-        let rolled_levels: Vec<(Option<f64>, Option<f64>)> = later_market
-            .expiries
-            .iter()
-            .map(|&t| {
-                if t + elapsed > earlier_last {
-                    return (None, None);
-                }
-                let variance = earlier_term.forward_variance_swap(elapsed, t + elapsed).ok();
-                let gamma = earlier_term
-                    .total_gamma(t + elapsed)
-                    .and_then(|g| Ok((g - earlier_term.total_gamma(elapsed)?) / t))
-                    .ok();
-                (variance, gamma)
-            })
-            .collect();
-        // Levels move to the later market's one expiry at a time; the value is linear in
-        // the levels, so the order does not matter.
-        let mut mixed = later_market.clone();
-        for (j, (v, g)) in rolled_levels.iter().enumerate() {
-            if let (Some(v), Some(g)) = (v, g) {
-                mixed.variance_swap[j] = *v;
-                mixed.gamma_swap[j] = *g;
-            }
-        }
-        let quantity = |m: &SwapMarket| -> Result<f64, RiskError> {
-            let term = TermStructure::new(&m.expiries, &m.variance_swap, &m.gamma_swap)?;
-            Ok(remaining_quantity(later.kind, &term, from, later.maturity, e.spot_ratio)?.0)
-        };
-        let mut previous = quantity(&mixed)?;
-        let mut moves = Vec::with_capacity(n);
-        for (j, (v, g)) in rolled_levels.into_iter().enumerate() {
-            mixed.variance_swap[j] = later_market.variance_swap[j];
-            mixed.gamma_swap[j] = later_market.gamma_swap[j];
-            let current = quantity(&mixed)?;
-            let pnl = at_earlier_discount * l.future_weight * (current - previous);
-            moves.push(ExpiryMove { earlier_variance_swap: v, earlier_gamma_swap: g, pnl });
-            previous = current;
-        }
-        (time_decay, spot, moves)
+        remaining_parts(later, (earlier_market, later_market), (&e, &l), elapsed, at_earlier_discount)?
     } else {
+        let n = later_market.expiries.len();
         let moves = (0..n).map(|_| ExpiryMove { earlier_variance_swap: None, earlier_gamma_swap: None, pnl: 0.0 });
         (at_earlier_discount * (-e.future_weight * e.remaining), 0.0, moves.collect())
     };
@@ -572,6 +520,80 @@ pub fn explain(
         discounting,
         unexplained: later_value - earlier_value - explained,
     })
+}
+
+/// The parts of an explanation from the remaining period of a position not matured at
+/// the later time: time decay, spot, and the levels expiry by expiry (`e` and `l` are
+/// the position's legs on the earlier and the later market).
+fn remaining_parts(
+    later: &SwapPosition,
+    (earlier_market, later_market): (&SwapMarket, &SwapMarket),
+    (e, l): (&Legs, &Legs),
+    elapsed: f64,
+    at_earlier_discount: f64,
+) -> Result<(f64, f64, Vec<ExpiryMove>), RiskError> {
+    let earlier_term =
+        TermStructure::new(&earlier_market.expiries, &earlier_market.variance_swap, &earlier_market.gamma_swap)?;
+    let later_term = TermStructure::new(&later_market.expiries, &later_market.variance_swap, &later_market.gamma_swap)?;
+    let from = later.start.max(0.0);
+    // The earlier market's implied quantity of the later remaining period.
+    let (rolled, _) =
+        remaining_quantity(later.kind, &earlier_term, from + elapsed, later.maturity + elapsed, e.spot_ratio)?;
+    let (later_at_earlier_spot, _) = remaining_quantity(later.kind, &later_term, from, later.maturity, e.spot_ratio)?;
+    let time_decay = at_earlier_discount * (l.future_weight * rolled - e.future_weight * e.remaining);
+    let spot = at_earlier_discount * l.future_weight * (l.remaining - later_at_earlier_spot);
+    let rolled_levels = levels_rolled_forward(&earlier_term, earlier_market, later_market, elapsed);
+    // Levels move to the later market's one expiry at a time; the value is linear in
+    // the levels, so the order does not matter.
+    let mut mixed = later_market.clone();
+    for (j, (v, g)) in rolled_levels.iter().enumerate() {
+        if let (Some(v), Some(g)) = (v, g) {
+            mixed.variance_swap[j] = *v;
+            mixed.gamma_swap[j] = *g;
+        }
+    }
+    let quantity = |m: &SwapMarket| -> Result<f64, RiskError> {
+        let term = TermStructure::new(&m.expiries, &m.variance_swap, &m.gamma_swap)?;
+        Ok(remaining_quantity(later.kind, &term, from, later.maturity, e.spot_ratio)?.0)
+    };
+    let mut previous = quantity(&mixed)?;
+    let mut moves = Vec::with_capacity(later_market.expiries.len());
+    for (j, (v, g)) in rolled_levels.into_iter().enumerate() {
+        mixed.variance_swap[j] = later_market.variance_swap[j];
+        mixed.gamma_swap[j] = later_market.gamma_swap[j];
+        let current = quantity(&mixed)?;
+        let pnl = at_earlier_discount * l.future_weight * (current - previous);
+        moves.push(ExpiryMove { earlier_variance_swap: v, earlier_gamma_swap: g, pnl });
+        previous = current;
+    }
+    Ok((time_decay, spot, moves))
+}
+
+/// The earlier market's variance and gamma swap levels at each expiry of the later
+/// market, seen from the later time (`elapsed` years on): its forward levels from then
+/// to the expiry; `None` for an expiry beyond the earlier market's last.
+fn levels_rolled_forward(
+    earlier_term: &TermStructure,
+    earlier_market: &SwapMarket,
+    later_market: &SwapMarket,
+    elapsed: f64,
+) -> Vec<(Option<f64>, Option<f64>)> {
+    let earlier_last = earlier_market.expiries[earlier_market.expiries.len() - 1];
+    later_market
+        .expiries
+        .iter()
+        .map(|&t| {
+            if t + elapsed > earlier_last {
+                return (None, None);
+            }
+            let variance = earlier_term.forward_variance_swap(elapsed, t + elapsed).ok();
+            let gamma = earlier_term
+                .total_gamma(t + elapsed)
+                .and_then(|g| Ok((g - earlier_term.total_gamma(elapsed)?) / t))
+                .ok();
+            (variance, gamma)
+        })
+        .collect()
 }
 
 #[cfg(test)]

@@ -1,5 +1,6 @@
-//! SVG charts (plotters): the term structures of one analysis, and a fit parameter
-//! through time. Numbers in, SVG text out; no HTTP or store types.
+//! Draws the charts as SVG (plotters): the term structures of one analysis, and a fit
+//! parameter through time. Numbers in, SVG text out; no HTTP or store types (the
+//! service's chart endpoints are in `api::chart_endpoints`).
 
 use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;

@@ -1,9 +1,9 @@
-//! `POST /v1/valuations` (a swap book against a snapshot, inline or stored) and
-//! `POST /v1/realized` (realized variance from closes).
+//! Serves swap valuation: `POST /v1/valuations` (a swap book against a snapshot,
+//! inline or stored) and `POST /v1/realized` (realized variance from closes).
 
 use super::body::JsonText;
 use super::error::{ApiError, ProblemDetails};
-use super::AppState;
+use super::state::AppState;
 use crate::store::Store;
 use crate::wire::input::parse_json;
 use crate::wire::valuation::{self, BookDoc, ClosesDoc, PositionDoc, RealizedOutDoc, ValuationDoc};
@@ -41,21 +41,6 @@ pub struct ValuationRequest {
     pub positions: Vec<PositionDoc>,
 }
 
-/// Example request of the valuation endpoint.
-pub fn valuation_example() -> serde_json::Value {
-    serde_json::json!({
-        "snapshot": super::docs::snapshot_example(),
-        "holidays": ["2026-12-25", "2027-01-01"],
-        "positions": [
-            {"id": "VS-0142", "kind": "variance", "start": "2026-09-30T21:00:00Z", "maturity": "2027-06-18T21:00:00Z",
-             "strike_vol": 0.21, "vega_notional": 100000.0, "side": "long",
-             "realized": {"variance": 0.0392}},
-            {"id": "LS-0007", "kind": "leverage", "start": "2026-11-30T15:30:00Z", "maturity": "2027-03-19T21:00:00Z",
-             "strike": -0.0015, "variance_notional": 3000.0, "side": "short"}
-        ]
-    })
-}
-
 /// The text, format and field path of a snapshot given inline (`inline`) or by the id
 /// of a stored one; `None` when neither is given and `required` is false.
 async fn valuation_snapshot(
@@ -76,10 +61,7 @@ async fn valuation_snapshot(
         (None, None) => Ok(None),
         (Some(doc), None) => Ok(Some((doc.to_string(), SnapshotFormat::Json, root.field(field)))),
         (None, Some(id)) => {
-            let stored = state.store().get(id, true).await.map_err(|e| {
-                state.metrics().store_error("get");
-                ApiError::from(e)
-            })?;
+            let stored = state.store().get(id, true).await.map_err(|e| state.store_failed("get", e))?;
             let Some((media_type, text)) = stored.and_then(|s| s.input) else {
                 return Err(InputErrors::one(root.field(id_field), format!("no stored snapshot with id {id}")).into());
             };
@@ -93,7 +75,7 @@ async fn valuation_snapshot(
 /// Value a book of variance, gamma and leverage swaps.
 #[utoipa::path(
     post, path = "/v1/valuations", tag = "risk",
-    request_body(content = ValuationRequest, content_type = "application/json", example = json!(valuation_example())),
+    request_body(content = ValuationRequest, content_type = "application/json", example = json!(super::examples::valuation_example())),
     responses(
         (status = 200, description = "Values, legs, implied levels, vega by expiry and totals", body = ValuationDoc),
         (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
