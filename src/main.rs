@@ -78,13 +78,15 @@ enum Command {
     Openapi,
     /// Time the analysis and the fit of a set of snapshots in-process.
     Bench {
-        /// Snapshot JSON file, or a directory whose `*.json` files (not `*.truth.json`)
-        /// are snapshots; repeat for more.
+        /// Snapshot file (JSON or CSV), or a directory whose `*.json` (not `*.truth.json`)
+        /// and `*.csv` files are snapshots; repeat for more.
         #[arg(long, short, required = true)]
         input: Vec<PathBuf>,
         /// Number of runs.
         #[arg(long, default_value_t = 200)]
         runs: usize,
+        #[command(flatten)]
+        snapshot: cli::SnapshotFlags,
     },
 }
 
@@ -102,7 +104,7 @@ fn main() -> ExitCode {
             cli::run_realized(&closes, annualization, pretty, &mut stdout)
         }
         Command::Fit { input, pretty } => cli::run_fit(&input, pretty, &mut stdout),
-        Command::Bench { input, runs } => cli::bench::run_bench(&input, runs, &mut stdout),
+        Command::Bench { input, runs, snapshot } => cli::bench::run_bench(&input, runs, &snapshot, &mut stdout),
         Command::Serve(args) => {
             drop(stdout);
             cli::serve::run_serve(&args)
@@ -113,6 +115,11 @@ fn main() -> ExitCode {
     };
     match result {
         Ok(()) => ExitCode::from(Status::Ok as u8),
+        // The reader of standard output went away (`logstrip analyze ... | head`): it
+        // asked for no more, which is not an error worth a message.
+        Err(CliError::Io { source, .. }) if source.kind() == std::io::ErrorKind::BrokenPipe => {
+            ExitCode::from(Status::Ok as u8)
+        }
         Err(e) => {
             eprintln!("{e}");
             ExitCode::from(e.status() as u8)

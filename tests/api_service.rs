@@ -181,6 +181,13 @@ async fn every_error_status_is_problem_json() {
         problem(post_json(&server, "/v1/fits", unknown_field.to_string()).await, StatusCode::UNPROCESSABLE_ENTITY)
             .await;
     assert_eq!(unknown["errors"][0]["pointer"], "/colour", "{unknown}");
+    // A missing field is pointed at, not its enclosing document.
+    let mut missing_field = logstrip::api::examples::swaps_example();
+    missing_field.as_object_mut().unwrap().remove("as_of");
+    let missing =
+        problem(post_json(&server, "/v1/fits", missing_field.to_string()).await, StatusCode::UNPROCESSABLE_ENTITY)
+            .await;
+    assert_eq!(missing["errors"][0]["pointer"], "/as_of", "{missing}");
 
     // Over the 64 KiB limit of this server (the demo snapshot is larger).
     let too_large =

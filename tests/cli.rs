@@ -283,3 +283,100 @@ fn a_fixed_rho_nu_beyond_nu_exits_2_naming_the_field() {
     let stderr = String::from_utf8_lossy(&out.stderr);
     assert!(stderr.lines().any(|l| l.starts_with("fit.fix.rho_nu: ") && l.contains("outside [-1, 1]")), "{stderr}");
 }
+
+/// A field the document lacks is named in the path, without the parser's position.
+#[test]
+fn a_missing_field_is_named_in_the_path() {
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/demo-data/kestrel50-snapshot.json"))
+        .expect("demo snapshot");
+    let demo: serde_json::Value = serde_json::from_str(&text).expect("demo snapshot parses");
+    let mut no_as_of = demo.clone();
+    no_as_of.as_object_mut().expect("object").remove("as_of");
+    let mut no_strike = demo;
+    no_strike["slices"][2]["points"][5].as_object_mut().expect("object").remove("strike");
+    for (doc, expected) in [(no_as_of, "as_of: is required"), (no_strike, "slices[2].points[5].strike: is required")] {
+        let out = logstrip(&["analyze", "--input", "-"], Some(&doc.to_string()));
+        assert_eq!(out.status.code(), Some(2));
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(stderr.trim(), expected, "{stderr}");
+    }
+}
+
+/// CSV problems in our words: a ragged row, and a file without an underlying or a
+/// valuation time naming the flags that supply them.
+#[test]
+fn csv_problems_name_the_row_and_the_flags() {
+    let ragged = "as_of,expiry,strike,vol,forward\n2026-11-30T15:30:00Z,2027-03-19T16:00:00Z,4000,0.21,4210\n2026-11-30T15:30:00Z,2027-03-19T16:00:00Z,4200,0.20\n";
+    let out = logstrip(&["analyze", "--input", "-", "--format", "csv"], Some(ragged));
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(stderr.trim(), "line 3: the row has 4 fields where the header has 5", "{stderr}");
+
+    let headless = "expiry,strike,vol,forward\n2027-03-19T16:00:00Z,4000,0.21,4210\n";
+    let out = logstrip(&["analyze", "--input", "-", "--format", "csv"], Some(headless));
+    assert_eq!(out.status.code(), Some(2));
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(stderr.contains("--underlying") && stderr.contains("?underlying="), "{stderr}");
+    assert!(stderr.contains("--as-of") && stderr.contains("?as_of="), "{stderr}");
+}
+
+/// `analyze | head`: the reader closing the pipe early is not an error.
+#[test]
+fn a_closed_pipe_is_a_quiet_exit() {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_logstrip"))
+        .args(["analyze", "--input", "demo-data/kestrel50-snapshot.json", "--pretty"])
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("binary starts");
+    // Close the read end before the analysis has written anything.
+    drop(child.stdout.take());
+    let out = child.wait_with_output().expect("binary finishes");
+    assert!(out.status.success(), "status {:?}, stderr {}", out.status, String::from_utf8_lossy(&out.stderr));
+    assert!(out.stderr.is_empty(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+}
+
+/// `bench` reads a CSV snapshot like `analyze` does, with the same flags.
+#[test]
+fn bench_reads_csv_snapshots() {
+    let csv = "expiry,strike,vol,forward\n\
+               2027-03-19T16:00:00Z,3600,0.26,4210\n2027-03-19T16:00:00Z,3900,0.23,4210\n\
+               2027-03-19T16:00:00Z,4200,0.205,4210\n2027-03-19T16:00:00Z,4500,0.19,4210\n\
+               2027-03-19T16:00:00Z,4800,0.185,4210\n2027-03-19T16:00:00Z,5100,0.185,4210\n\
+               2027-06-18T16:00:00Z,3600,0.25,4230\n2027-06-18T16:00:00Z,3900,0.225,4230\n\
+               2027-06-18T16:00:00Z,4200,0.205,4230\n2027-06-18T16:00:00Z,4500,0.192,4230\n\
+               2027-06-18T16:00:00Z,4800,0.186,4230\n2027-06-18T16:00:00Z,5100,0.185,4230\n\
+               2027-12-17T16:00:00Z,3600,0.245,4260\n2027-12-17T16:00:00Z,3900,0.225,4260\n\
+               2027-12-17T16:00:00Z,4200,0.207,4260\n2027-12-17T16:00:00Z,4500,0.195,4260\n\
+               2027-12-17T16:00:00Z,4800,0.19,4260\n2027-12-17T16:00:00Z,5100,0.188,4260\n";
+    let dir = std::env::temp_dir().join(format!("logstrip-bench-csv-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temp dir");
+    let path = dir.join("heron.csv");
+    std::fs::write(&path, csv).expect("write csv");
+    let path_text = path.to_string_lossy().to_string();
+    let flags = ["--underlying", "HERON", "--as-of", "2026-11-30T15:30:00Z"];
+    let analyzed = logstrip(&[&["analyze", "--input", &path_text][..], &flags[..]].concat(), None);
+    assert!(analyzed.status.success(), "analyze: {}", String::from_utf8_lossy(&analyzed.stderr));
+    let out = logstrip(&[&["bench", "--input", &path_text, "--runs", "2"][..], &flags[..]].concat(), None);
+    let _ = std::fs::remove_dir_all(&dir);
+    assert!(out.status.success(), "bench: {}", String::from_utf8_lossy(&out.stderr));
+    let report: serde_json::Value = serde_json::from_slice(&out.stdout).expect("bench prints JSON");
+    assert_eq!(report["snapshots"].as_array().expect("snapshots").len(), 1, "{report}");
+}
+
+/// `demo` finds its data from any folder (here the system's temporary folder).
+#[test]
+fn demo_finds_its_data_from_another_folder() {
+    let dir = std::env::temp_dir().join(format!("logstrip-demo-cwd-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).expect("temp dir");
+    let database = format!("sqlite://{}", dir.join("demo.db").display());
+    let out = Command::new(env!("CARGO_BIN_EXE_logstrip"))
+        .args(["demo", "--no-serve", "--database", &database])
+        .current_dir(&dir)
+        .output()
+        .expect("binary runs");
+    let _ = std::fs::remove_dir_all(&dir);
+    assert!(out.status.success(), "stderr: {}", String::from_utf8_lossy(&out.stderr));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("Loaded 38 demo snapshots"));
+}

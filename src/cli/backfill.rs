@@ -209,9 +209,15 @@ impl Progress {
         let bar = std::io::stderr().is_terminal().then(|| {
             let bar = indicatif::ProgressBar::new(total as u64);
             if let Ok(style) =
-                indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} files  {per_sec}  ETA {eta}  {msg}")
+                indicatif::ProgressStyle::with_template("{bar:40} {pos}/{len} files  {rate}  ETA {eta}  {msg}")
             {
-                bar.set_style(style);
+                // The rate to one decimal ("52.5 files/s"), not the bar's default four.
+                bar.set_style(style.with_key(
+                    "rate",
+                    |state: &indicatif::ProgressState, w: &mut dyn std::fmt::Write| {
+                        let _ = write!(w, "{:.1} files/s", state.per_sec());
+                    },
+                ));
             }
             bar
         });

@@ -2,7 +2,7 @@
 //! many times each and reports wall-time statistics per snapshot and the slowest, so
 //! speed claims come with figures.
 
-use super::{read_input, CliError};
+use super::{CliError, SnapshotFlags};
 use crate::analytics::analysis::{analyze, leverage_target, AnalyzeOptions};
 use crate::analytics::calibrate::{fit_leverage, FitSpec};
 use serde::Serialize;
@@ -68,7 +68,7 @@ fn timing(mut samples: Vec<f64>) -> Timing {
 }
 
 /// The snapshot files of `inputs`: files as given, directories expanded to their
-/// `*.json` files other than `*.truth.json`, sorted.
+/// `*.json` files other than `*.truth.json` and their `*.csv` files, sorted.
 fn snapshot_files(inputs: &[PathBuf]) -> Result<Vec<PathBuf>, CliError> {
     let mut files = Vec::new();
     for input in inputs {
@@ -79,7 +79,7 @@ fn snapshot_files(inputs: &[PathBuf]) -> Result<Vec<PathBuf>, CliError> {
                 .filter_map(|e| e.ok().map(|e| e.path()))
                 .filter(|p| {
                     let name = p.file_name().and_then(|n| n.to_str()).unwrap_or("");
-                    name.ends_with(".json") && !name.ends_with(".truth.json")
+                    (name.ends_with(".json") && !name.ends_with(".truth.json")) || name.ends_with(".csv")
                 })
                 .collect();
             found.sort();
@@ -92,9 +92,8 @@ fn snapshot_files(inputs: &[PathBuf]) -> Result<Vec<PathBuf>, CliError> {
 }
 
 /// Times one snapshot over `runs` runs.
-fn bench_one(input: &Path, runs: usize) -> Result<SnapshotTiming, CliError> {
-    let text = read_input(input)?;
-    let (snapshot, first) = crate::wire::analyze_text(&text)?;
+fn bench_one(input: &Path, runs: usize, flags: &SnapshotFlags) -> Result<SnapshotTiming, CliError> {
+    let (snapshot, first) = super::analyze_file(input, flags)?;
     let spec = snapshot.options.fit.clone().unwrap_or(FitSpec::default());
     let options = AnalyzeOptions { smile: snapshot.options.smile, fit: Some(spec.clone()) };
     // The fit `analyze` runs, weights included.
@@ -131,9 +130,10 @@ fn bench_one(input: &Path, runs: usize) -> Result<SnapshotTiming, CliError> {
 ///
 /// # Errors
 /// [`CliError`] for unreadable or invalid input.
-pub fn run_bench(inputs: &[PathBuf], runs: usize, out: &mut dyn Write) -> Result<(), CliError> {
+pub fn run_bench(inputs: &[PathBuf], runs: usize, flags: &SnapshotFlags, out: &mut dyn Write) -> Result<(), CliError> {
     let runs = runs.max(1);
-    let snapshots = snapshot_files(inputs)?.iter().map(|file| bench_one(file, runs)).collect::<Result<Vec<_>, _>>()?;
+    let snapshots =
+        snapshot_files(inputs)?.iter().map(|file| bench_one(file, runs, flags)).collect::<Result<Vec<_>, _>>()?;
     let slowest = |by: fn(&SnapshotTiming) -> f64| {
         snapshots
             .iter()

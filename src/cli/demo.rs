@@ -18,9 +18,11 @@ use std::path::{Path, PathBuf};
 /// Flags of `logstrip demo`.
 #[derive(Debug, Clone, Args)]
 pub struct DemoArgs {
-    /// Directory of the demo day (snapshots and truth.json).
-    #[arg(long, default_value = "demo-data/day")]
-    pub data: PathBuf,
+    /// Directory of the demo day (snapshots and truth.json); by default
+    /// `demo-data/day` under the current folder, beside the binary or in the source
+    /// tree it was built from, the first that exists.
+    #[arg(long)]
+    pub data: Option<PathBuf>,
     /// Store to load into.
     #[arg(long, default_value = "sqlite://./logstrip-demo.db")]
     pub database: String,
@@ -238,6 +240,26 @@ async fn load(store: &AnyStore, files: &[PathBuf]) -> Result<(Vec<(String, serde
     Ok((analyses, created))
 }
 
+/// Where the demo day lies relative to the repository root.
+const DEMO_DAY: &str = "demo-data/day";
+
+/// The demo day's folder when `--data` is not given: under the current folder, in a
+/// folder above the binary (`target/release/logstrip` sits two levels below the
+/// repository root) or in the source tree the binary was built from.
+fn find_demo_day() -> Result<PathBuf, CliError> {
+    let mut candidates = vec![PathBuf::from(DEMO_DAY)];
+    if let Ok(exe) = std::env::current_exe() {
+        candidates.extend(exe.ancestors().skip(1).take(4).map(|dir| dir.join(DEMO_DAY)));
+    }
+    candidates.push(Path::new(env!("CARGO_MANIFEST_DIR")).join(DEMO_DAY));
+    candidates.into_iter().find(|dir| dir.join("truth.json").is_file()).ok_or_else(|| {
+        CliError::Config(format!(
+            "the demo day was not found ({DEMO_DAY} under the current folder, beside the binary or in its source tree): \
+             pass --data with the repository's {DEMO_DAY} folder"
+        ))
+    })
+}
+
 fn snapshot_files(dir: &Path) -> Result<Vec<PathBuf>, CliError> {
     let io = |source| CliError::Io { path: dir.display().to_string(), source };
     let mut files: Vec<PathBuf> = std::fs::read_dir(dir)
@@ -258,8 +280,12 @@ fn snapshot_files(dir: &Path) -> Result<Vec<PathBuf>, CliError> {
 /// [`CliError`] when the demo data cannot be read, the store opened or the port bound.
 pub fn run_demo(args: &DemoArgs, out: &mut dyn Write) -> Result<(), CliError> {
     let io = |source| CliError::Io { path: "stdout".into(), source };
-    let files = snapshot_files(&args.data)?;
-    let truth_path = args.data.join("truth.json");
+    let data = match &args.data {
+        Some(dir) => dir.clone(),
+        None => find_demo_day()?,
+    };
+    let files = snapshot_files(&data)?;
+    let truth_path = data.join("truth.json");
     let truth: Option<Truth> = std::fs::read_to_string(&truth_path).ok().and_then(|t| serde_json::from_str(&t).ok());
     let runtime = tokio::runtime::Runtime::new().map_err(|e| CliError::Serve(format!("runtime: {e}")))?;
     runtime.block_on(async {

@@ -143,7 +143,9 @@ impl ServeConfig {
 pub fn init_logging(format: LogFormat) {
     let filter = tracing_subscriber::EnvFilter::try_from_env("LOGSTRIP_LOG")
         .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info"));
-    let builder = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr);
+    // Colours only on a terminal: a log file or a pipe gets plain text.
+    let colours = std::io::IsTerminal::is_terminal(&std::io::stderr());
+    let builder = tracing_subscriber::fmt().with_env_filter(filter).with_writer(std::io::stderr).with_ansi(colours);
     let _ = match format {
         LogFormat::Text => builder.try_init(),
         LogFormat::Json => builder.json().try_init(),

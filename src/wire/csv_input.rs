@@ -52,7 +52,7 @@ fn read_table(text: &str, allowed: &[&str]) -> Result<Table, InputErrors> {
     for record in reader.records() {
         let record = record.map_err(|e| {
             let line = e.position().map(|p| p.line() as usize).unwrap_or(0);
-            InputErrors::malformed(FieldPath::csv(line, None), e.to_string())
+            InputErrors::malformed(FieldPath::csv(line, None), csv_problem(&e))
         })?;
         let line = record.position().map(|p| p.line() as usize).unwrap_or(0);
         if record.iter().all(str::is_empty) {
@@ -61,6 +61,18 @@ fn read_table(text: &str, allowed: &[&str]) -> Result<Table, InputErrors> {
         rows.push((line, record.iter().map(str::to_string).collect()));
     }
     Ok(Table { columns, rows })
+}
+
+/// What is wrong with a row the CSV reader refused, in our words: a row with another
+/// number of fields than the header, or text that is not UTF-8.
+fn csv_problem(e: &csv::Error) -> String {
+    match e.kind() {
+        csv::ErrorKind::UnequalLengths { expected_len, len, .. } => {
+            format!("the row has {len} fields where the header has {expected_len}")
+        }
+        csv::ErrorKind::Utf8 { .. } => "the row is not valid UTF-8 text".to_string(),
+        _ => "the row could not be read as CSV".to_string(),
+    }
 }
 
 impl Table {
@@ -181,13 +193,16 @@ fn snapshot_doc(text: &str, header: &CsvHeader) -> Result<(SnapshotDoc, Origins)
     if underlying.is_none() {
         problems.push(Problem {
             path: FieldPath::csv(1, Some("underlying")),
-            message: "give an underlying column, or the underlying as a flag or query parameter".into(),
+            message:
+                "give an underlying column, or the underlying as --underlying (command line) or ?underlying= (service)"
+                    .into(),
         });
     }
     if as_of.is_none() {
         problems.push(Problem {
             path: FieldPath::csv(1, Some("as_of")),
-            message: "give an as_of column, or as_of as a flag or query parameter".into(),
+            message: "give an as_of column, or the valuation time as --as-of (command line) or ?as_of= (service)"
+                .into(),
         });
     }
     if let Some(first_extra) = groups.get(MAX_EXPIRIES) {

@@ -256,12 +256,32 @@ pub fn parse_json<T: for<'de> Deserialize<'de>>(text: &str) -> Result<T, InputEr
         );
         let inner = err.into_inner();
         match inner.classify() {
-            serde_json::error::Category::Data => InputErrors::one(path, inner.to_string()),
+            serde_json::error::Category::Data => {
+                let (path, message) = name_the_field(path, &inner.to_string());
+                InputErrors::one(path, message)
+            }
             _ => InputErrors::malformed(path, inner.to_string()),
         }
     })?;
     de.end().map_err(|e| InputErrors::malformed(FieldPath::root(), e.to_string()))?;
     Ok(value)
+}
+
+/// A missing field named in the path rather than in the parser's wording: serde
+/// reports it at the enclosing object (`missing field \`as_of\` at line 1 column
+/// 145300`), so the field joins the path and the message says what is wrong with it,
+/// without the parser's position. (An unknown field is already in the path.)
+fn name_the_field(mut path: FieldPath, message: &str) -> (FieldPath, String) {
+    let field_of = |prefix: &str| -> Option<String> {
+        let rest = message.strip_prefix(prefix)?;
+        let end = rest.find('`')?;
+        Some(rest[..end].to_string())
+    };
+    if let Some(field) = field_of("missing field `") {
+        path.0.push(Segment::Field(field));
+        return (path, "is required".to_string());
+    }
+    (path, message.to_string())
 }
 
 /// Collects problems while validating.

@@ -81,6 +81,18 @@ pub fn value_book(
     if !problems.is_empty() {
         return Err(InputErrors::from_problems(problems));
     }
+    // Expiries a position has no vega to (beyond its maturity, or all of them once it
+    // has matured) are left out of its buckets, and so of the totals' where no position
+    // has any.
+    for position in &mut out {
+        position.vega_buckets.retain(|b| b.vega != 0.0);
+    }
+    for total in [totals.variance.as_mut(), totals.gamma.as_mut(), totals.leverage.as_mut(), Some(&mut totals.book)]
+        .into_iter()
+        .flatten()
+    {
+        total.vega_buckets.retain(|b| b.vega != 0.0);
+    }
     Ok(ValuationDoc {
         underlying: snapshot.underlying.clone(),
         as_of: snapshot.as_of.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
