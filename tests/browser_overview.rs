@@ -86,6 +86,10 @@ async fn overview_page_renders_charts_without_script_errors() {
     assert!(dom.contains("variance swaps") && dom.contains("± 2 se (vol pts)"), "levels with standard errors shown");
     assert!(dom.matches("<td>± ").count() >= 30, "a standard error on every expiry of the demo day");
     assert!(dom.contains("flagged quotes"), "flagged quotes section shown");
+    // The page's clock is UTC like every other time on it ("updated 2026-12-05 18:40:12 UTC").
+    let status = dom.split("id=\"status\"").nth(1).unwrap_or("");
+    let status = status.split('<').next().unwrap_or("");
+    assert!(status.contains("updated ") && status.trim_end().ends_with(" UTC"), "status in UTC: {status}");
     for marker in ["Uncaught", "SyntaxError", "TypeError", "ReferenceError", ":ERROR:CONSOLE"] {
         assert!(!log.contains(marker), "script error in the browser log ({marker}):\n{log}");
     }
