@@ -69,8 +69,11 @@ async fn valuation_errors_point_at_the_field() {
     let mut unknown = valuation_example();
     unknown.as_object_mut().unwrap().remove("snapshot");
     unknown["snapshot_id"] = json!(404);
-    let pointers = problem_pointers(post_json(&server, "/v1/valuations", unknown.to_string()).await).await;
-    assert_eq!(pointers, vec!["/snapshot_id"]);
+    // An id that names no stored snapshot is a 404 naming the field (issue 19).
+    let response = post_json(&server, "/v1/valuations", unknown.to_string()).await;
+    assert_eq!(response.status(), StatusCode::NOT_FOUND);
+    let problem: Value = response.json().await.expect("problem");
+    assert_eq!(problem["detail"], json!("snapshot_id: no stored snapshot with id 404"));
 }
 
 #[tokio::test]

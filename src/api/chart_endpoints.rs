@@ -15,7 +15,7 @@ use axum::http::{header, HeaderValue, StatusCode};
 use axum::response::{Html, IntoResponse, Response};
 use chrono::{DateTime, Duration, Utc};
 use serde::Deserialize;
-use utoipa::IntoParams;
+use utoipa::{IntoParams, ToSchema};
 
 /// Most snapshots drawn in a parameter history.
 pub const MAX_HISTORY_POINTS: u32 = 5000;
@@ -87,15 +87,29 @@ pub async fn get_latest_chart(
 #[derive(Debug, Deserialize, IntoParams)]
 #[into_params(parameter_in = Query)]
 pub struct ParamChartQuery {
-    /// `hurst`, `rho_nu`, `mean_reversion` or `leverage_rmse`.
-    #[param(example = "hurst")]
+    /// The fitted parameter to draw (default `hurst`).
+    #[param(value_type = Option<ChartParamDoc>, inline, example = "hurst")]
     pub param: Option<String>,
     /// Inclusive start of `as_of`, RFC 3339.
-    #[param(example = "2026-11-30T09:00:00Z")]
+    #[param(value_type = Option<String>, format = DateTime, example = "2026-11-30T09:00:00Z")]
     pub from: Option<String>,
     /// Exclusive end of `as_of`, RFC 3339.
-    #[param(example = "2026-12-01T00:00:00Z")]
+    #[param(value_type = Option<String>, format = DateTime, example = "2026-12-01T00:00:00Z")]
     pub to: Option<String>,
+}
+
+/// The fitted parameters a history chart can draw.
+#[derive(Debug, Clone, Copy, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum ChartParamDoc {
+    /// Hurst exponent (rough Heston).
+    Hurst,
+    /// `rho * nu`.
+    RhoNu,
+    /// Mean reversion.
+    MeanReversion,
+    /// RMS distance between model and market leverage swaps.
+    LeverageRmse,
 }
 
 fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<Utc>>, ApiError> {

@@ -229,9 +229,26 @@ pub async fn post_fit(State(state): State<AppState>, JsonText(text): JsonText) -
 #[derive(Debug, Deserialize, IntoParams)]
 #[into_params(parameter_in = Query)]
 pub struct SnapshotQuery {
-    /// `input` adds the original snapshot to the response.
-    #[param(example = "input")]
+    /// `input` adds the original snapshot to the response; any other value is a 400.
+    #[param(value_type = Option<IncludeDoc>, inline, example = "input")]
     pub include: Option<String>,
+}
+
+/// What `include` may add to a stored analysis (the only value the service takes).
+#[derive(Debug, Clone, Copy, Deserialize, utoipa::ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum IncludeDoc {
+    /// The snapshot as it was posted.
+    Input,
+}
+
+/// Whether `include` asks for the original input.
+fn includes_input(include: Option<&str>) -> Result<bool, ApiError> {
+    match include {
+        None => Ok(false),
+        Some("input") => Ok(true),
+        Some(other) => Err(ApiError::Parameter { name: "include", message: format!("must be `input`, got {other:?}") }),
+    }
 }
 
 /// A stored analysis.
@@ -254,14 +271,7 @@ pub async fn get_snapshot(
     Path(id): Path<String>,
     query: Result<Query<SnapshotQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
-    let query = query_params(query)?;
-    let with_input = match query.include.as_deref() {
-        None | Some("") => false,
-        Some("input") => true,
-        Some(other) => {
-            return Err(ApiError::Parameter { name: "include", message: format!("must be `input`, got {other:?}") })
-        }
-    };
+    let with_input = includes_input(query_params(query)?.include.as_deref())?;
     let not_found = || ApiError::NotFound(format!("no snapshot with id {id:?}"));
     let numeric: i64 = id.parse().map_err(|_| not_found())?;
     let record = state
@@ -294,8 +304,8 @@ pub async fn get_underlyings(State(state): State<AppState>) -> Result<Response, 
 #[into_params(parameter_in = Query)]
 pub struct LatestQuery {
     /// With `If-None-Match` naming the current latest: hold the request up to this many
-    /// seconds (0 to 60) until a newer snapshot is stored.
-    #[param(example = "1")]
+    /// seconds (a whole number from 0 to 60) until a newer snapshot is stored.
+    #[param(value_type = Option<u8>, minimum = 0, maximum = 60, example = 1)]
     pub wait: Option<String>,
 }
 
@@ -307,7 +317,10 @@ fn parse_wait(wait: Option<&str>) -> Result<Duration, ApiError> {
         name: "wait",
         message: format!("must be a whole number of seconds from 0 to {MAX_WAIT_SECONDS}, got {text:?}"),
     };
-    let seconds: u64 = text.trim().parse().map_err(|_| invalid())?;
+    if text.is_empty() || !text.bytes().all(|b| b.is_ascii_digit()) {
+        return Err(invalid());
+    }
+    let seconds: u64 = text.parse().map_err(|_| invalid())?;
     if seconds > MAX_WAIT_SECONDS {
         return Err(invalid());
     }
@@ -467,5 +480,16 @@ mod tests {
         assert!(parse_wait(Some("61")).is_err());
         assert!(parse_wait(Some("-1")).is_err());
         assert!(parse_wait(Some("x")).is_err());
+        assert!(parse_wait(Some("")).is_err());
+        assert!(parse_wait(Some(" 5")).is_err());
+        assert!(parse_wait(Some("+5")).is_err());
+    }
+
+    #[test]
+    fn include_takes_input_only() {
+        assert!(!includes_input(None).unwrap());
+        assert!(includes_input(Some("input")).unwrap());
+        assert!(includes_input(Some("")).is_err());
+        assert!(includes_input(Some("inputs")).is_err());
     }
 }

@@ -26,19 +26,33 @@ pub const MAX_LIMIT: u32 = 1000;
 #[into_params(parameter_in = Query)]
 pub struct HistoryParams {
     /// Inclusive start of `as_of`, RFC 3339.
-    #[param(example = "2026-11-30T09:00:00Z")]
+    #[param(value_type = Option<String>, format = DateTime, example = "2026-11-30T09:00:00Z")]
     pub from: Option<String>,
     /// Exclusive end of `as_of`, RFC 3339.
-    #[param(example = "2026-12-01T00:00:00Z")]
+    #[param(value_type = Option<String>, format = DateTime, example = "2026-12-01T00:00:00Z")]
     pub to: Option<String>,
     /// Snapshots per page, 1 to 1000 (default 100).
-    #[param(example = "100")]
+    #[param(value_type = Option<u16>, minimum = 1, maximum = 1000, example = 100)]
     pub limit: Option<String>,
-    /// `next_cursor` of the previous page.
+    /// `next_cursor` of the previous page: the `as_of` (microseconds since 1970 in
+    /// lowercase hexadecimal, `n` before it when earlier) and the id (hexadecimal) of the
+    /// last snapshot on that page, joined by `-`. The page holds the snapshots after that
+    /// position; a value of another form is a 400.
+    #[param(value_type = Option<String>, pattern = r"^n?[0-9a-f]{1,15}-[0-9a-f]{1,15}$", example = "6618015388e00-27")]
     pub cursor: Option<String>,
     /// `json` (default) or `csv`; `Accept: text/csv` also selects CSV.
-    #[param(example = "json")]
+    #[param(value_type = Option<HistoryFormatDoc>, inline, example = "json")]
     pub format: Option<String>,
+}
+
+/// The formats of a history page.
+#[derive(Debug, Clone, Copy, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum HistoryFormatDoc {
+    /// `application/json`.
+    Json,
+    /// `text/csv`, one row per snapshot and expiry.
+    Csv,
 }
 
 /// A page of history.
@@ -165,19 +179,56 @@ pub fn history_item(record: &StoredSnapshot) -> Result<HistoryItem, ApiError> {
     Ok(HistoryItem { id: record.id, as_of: rfc3339(record.as_of), stored_at: rfc3339(record.stored_at), fit, curve })
 }
 
-/// The opaque cursor: the position of the last row of a page.
+/// Most hexadecimal digits of each part of a cursor: 15 digits (60 bits) hold every
+/// RFC 3339 time (years 0 to 9999) in microseconds and every id, so any cursor of the
+/// documented form decodes.
+const CURSOR_DIGITS: usize = 15;
+
+/// The cursor: the position of the last row of a page, as the parameter documents it.
 fn encode_cursor(position: HistoryPosition) -> String {
-    format!("{:x}-{:x}", position.as_of.timestamp_micros(), position.id)
+    let micros = position.as_of.timestamp_micros();
+    let sign = if micros < 0 { "n" } else { "" };
+    format!("{sign}{:x}-{:x}", micros.unsigned_abs(), position.id)
+}
+
+/// A lowercase hexadecimal number of 1 to [`CURSOR_DIGITS`] digits.
+fn cursor_part(text: &str) -> Option<i64> {
+    let digits_ok = (1..=CURSOR_DIGITS).contains(&text.len())
+        && text.bytes().all(|b| b.is_ascii_digit() || (b'a'..=b'f').contains(&b));
+    digits_ok.then(|| i64::from_str_radix(text, 16).ok()).flatten()
 }
 
 fn decode_cursor(text: &str) -> Result<HistoryPosition, ApiError> {
-    let invalid = || ApiError::Parameter { name: "cursor", message: "not a cursor returned by this endpoint".into() };
-    let (micros, id) = text.split_once('-').ok_or_else(invalid)?;
-    let micros = i64::from_str_radix(micros, 16).map_err(|_| invalid())?;
-    let id = i64::from_str_radix(id, 16).map_err(|_| invalid())?;
+    let invalid = || ApiError::Parameter {
+        name: "cursor",
+        message: format!("must be a next_cursor returned by this endpoint (such as 6618015388e00-27), got {text:?}"),
+    };
+    let (negative, rest) = match text.strip_prefix('n') {
+        Some(rest) => (true, rest),
+        None => (false, text),
+    };
+    let (micros, id) = rest.split_once('-').ok_or_else(invalid)?;
+    let micros = cursor_part(micros).ok_or_else(invalid)?;
+    let id = cursor_part(id).ok_or_else(invalid)?;
+    let micros = if negative { -micros } else { micros };
+    // Every stored as_of lies between these (RFC 3339 years 0 to 9999, any offset), so a
+    // cursor beyond them means "before every snapshot" or "after every snapshot"; held
+    // there, it stays within what each store's time type holds.
+    let (micros, id) = if micros < EARLIEST_CURSOR_MICROS {
+        (EARLIEST_CURSOR_MICROS, 0)
+    } else if micros > LATEST_CURSOR_MICROS {
+        (LATEST_CURSOR_MICROS, i64::MAX)
+    } else {
+        (micros, id)
+    };
     let as_of = DateTime::from_timestamp_micros(micros).ok_or_else(invalid)?;
     Ok(HistoryPosition { as_of, id })
 }
+
+/// Two days before 0000-01-01T00:00:00Z, in microseconds since 1970.
+const EARLIEST_CURSOR_MICROS: i64 = (-62_167_219_200 - 2 * 86_400) * 1_000_000;
+/// Two days after 9999-12-31T23:59:59Z, in microseconds since 1970.
+const LATEST_CURSOR_MICROS: i64 = (253_402_300_799 + 2 * 86_400) * 1_000_000;
 
 fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<Utc>>, ApiError> {
     text.map(|t| {
@@ -193,8 +244,9 @@ fn parse_limit(text: Option<&str>) -> Result<u32, ApiError> {
     let Some(text) = text else {
         return Ok(DEFAULT_LIMIT);
     };
-    match text.trim().parse::<u32>() {
-        Ok(n) if (1..=MAX_LIMIT).contains(&n) => Ok(n),
+    let digits = !text.is_empty() && text.bytes().all(|b| b.is_ascii_digit());
+    match text.parse::<u32>() {
+        Ok(n) if digits && (1..=MAX_LIMIT).contains(&n) => Ok(n),
         _ => Err(ApiError::Parameter { name: "limit", message: format!("must be 1 to {MAX_LIMIT}, got {text:?}") }),
     }
 }
@@ -374,8 +426,27 @@ mod tests {
         let position =
             HistoryPosition { as_of: DateTime::from_timestamp_micros(1_796_052_600_123_456).unwrap(), id: 42 };
         assert_eq!(decode_cursor(&encode_cursor(position)).unwrap(), position);
-        assert!(decode_cursor("zz").is_err());
-        assert!(decode_cursor("1-").is_err());
+        let early = HistoryPosition { as_of: DateTime::from_timestamp_micros(-86_400_000_001).unwrap(), id: 7 };
+        assert_eq!(encode_cursor(early), "n141dd76001-7");
+        assert_eq!(decode_cursor(&encode_cursor(early)).unwrap(), early);
+        for garbage in ["", "zz", "1-", "-1", "n-1", "1-2-3", "A-1", "+1-2", "1-+2", "1000000000000000-1", "1- 2"] {
+            assert!(decode_cursor(garbage).is_err(), "{garbage:?} was taken as a cursor");
+        }
+    }
+
+    #[test]
+    fn cursors_beyond_any_time_stay_before_or_after_every_snapshot() {
+        let early = decode_cursor("nc6f8c2b20720f92-882c1dde6cd1201").unwrap();
+        assert_eq!((early.as_of.timestamp_micros(), early.id), (EARLIEST_CURSOR_MICROS, 0));
+        let late = decode_cursor("fffffffffffffff-1").unwrap();
+        assert_eq!((late.as_of.timestamp_micros(), late.id), (LATEST_CURSOR_MICROS, i64::MAX));
+    }
+
+    #[test]
+    fn every_cursor_of_the_documented_form_decodes() {
+        for text in ["0-0", "fffffffffffffff-fffffffffffffff", "nfffffffffffffff-1", "6618015388e00-27"] {
+            assert!(decode_cursor(text).is_ok(), "{text:?} was refused");
+        }
     }
 
     #[test]
@@ -384,6 +455,8 @@ mod tests {
         assert_eq!(parse_limit(Some("1000")).unwrap(), 1000);
         assert!(parse_limit(Some("0")).is_err());
         assert!(parse_limit(Some("1001")).is_err());
+        assert!(parse_limit(Some(" 5")).is_err());
+        assert!(parse_limit(Some("+5")).is_err());
     }
 
     #[test]

@@ -25,6 +25,28 @@ impl Modify for BearerSecurity {
         );
         add_header_examples(openapi);
         add_response_examples(openapi);
+        add_valuation_choices(openapi);
+    }
+}
+
+/// The rules between fields of a valuation request that utoipa cannot derive: exactly
+/// one of `snapshot` and `snapshot_id`, and not both `since_snapshot` and
+/// `since_snapshot_id` (`null` counts as absent, as the service reads it). JSON Schema
+/// puts them beside the properties, as one `allOf` (an extension map of one key, so the
+/// document's order stays fixed).
+fn add_valuation_choices(openapi: &mut utoipa::openapi::OpenApi) {
+    use utoipa::openapi::{schema::Schema, RefOr};
+    let given = |name: &str, kind: &str| json!({"required": [name], "properties": {name: {"type": kind}}});
+    let rules = json!([
+        {"oneOf": [given("snapshot", "object"), given("snapshot_id", "integer")]},
+        {"not": {
+            "required": ["since_snapshot", "since_snapshot_id"],
+            "properties": {"since_snapshot": {"type": "object"}, "since_snapshot_id": {"type": "integer"}}
+        }}
+    ]);
+    let Some(components) = openapi.components.as_mut() else { return };
+    if let Some(RefOr::T(Schema::Object(request))) = components.schemas.get_mut("ValuationRequest") {
+        request.extensions.get_or_insert_with(Default::default).insert("allOf".to_string(), rules);
     }
 }
 
@@ -68,7 +90,9 @@ fn add_header_examples(openapi: &mut utoipa::openapi::OpenApi) {
             "ETag" => Some(json!("\"39\"")),
             "Location" => Some(json!("/v1/snapshots/39")),
             "Retry-After" => Some(json!(super::error::RETRY_AFTER_SECONDS)),
-            "Link" => Some(json!("</v1/underlyings/KESTREL50/history?limit=100&cursor=MzkK>; rel=\"next\"")),
+            "Link" => {
+                Some(json!("</v1/underlyings/KESTREL50/history?limit=100&cursor=6618015388e00-27>; rel=\"next\""))
+            }
             _ => None,
         }
     };

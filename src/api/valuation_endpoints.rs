@@ -23,7 +23,7 @@ pub struct ValuationRequest {
     #[schema(value_type = Option<crate::wire::input::SnapshotDoc>)]
     pub snapshot: Option<serde_json::Value>,
     /// Id of a stored snapshot (or give `snapshot`).
-    #[serde(default)]
+    #[serde(default, deserialize_with = "crate::wire::strict::optional_whole_number")]
     pub snapshot_id: Option<i64>,
     /// An earlier snapshot (or give `since_snapshot_id`): the response then explains each
     /// position's change of value since it (`explain`).
@@ -31,7 +31,7 @@ pub struct ValuationRequest {
     #[schema(value_type = Option<crate::wire::input::SnapshotDoc>)]
     pub since_snapshot: Option<serde_json::Value>,
     /// Id of a stored earlier snapshot (or give `since_snapshot`).
-    #[serde(default)]
+    #[serde(default, deserialize_with = "crate::wire::strict::optional_whole_number")]
     pub since_snapshot_id: Option<i64>,
     /// Dates (`YYYY-MM-DD`) without an observation besides weekends.
     #[serde(default)]
@@ -63,7 +63,7 @@ async fn valuation_snapshot(
         (None, Some(id)) => {
             let stored = state.store().get(id, true).await.map_err(|e| state.store_failed("get", e))?;
             let Some((media_type, text)) = stored.and_then(|s| s.input) else {
-                return Err(InputErrors::one(root.field(id_field), format!("no stored snapshot with id {id}")).into());
+                return Err(ApiError::NotFound(format!("{id_field}: no stored snapshot with id {id}")));
             };
             let format = SnapshotFormat::from_media_type(&media_type)
                 .ok_or_else(|| ApiError::Internal(format!("stored snapshot {id} has media type {media_type:?}")))?;
@@ -83,6 +83,8 @@ async fn valuation_snapshot(
         (status = 403, description = "Read-only token", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 413, description = "Body over the limit", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 415, description = "Not `application/json`", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 404, description = "`snapshot_id` or `since_snapshot_id` names no stored snapshot", body = ProblemDetails,
+         content_type = "application/problem+json"),
         (status = 422, description = "Invalid values (a maturity beyond the last expiry included), each with its JSON pointer",
          body = ProblemDetails, content_type = "application/problem+json"),
         (status = 503, description = "Store unavailable (with `snapshot_id`)", body = ProblemDetails, content_type = "application/problem+json",

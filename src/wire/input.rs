@@ -122,8 +122,9 @@ pub struct FitDoc {
     /// Parameters held fixed.
     #[serde(default, deserialize_with = "super::strict::optional_object")]
     pub fix: Option<FixDoc>,
-    /// Vol-of-vol for the convexity report.
+    /// Vol-of-vol for the convexity report; positive.
     #[serde(default)]
+    #[schema(exclusive_minimum = 0.0)]
     pub nu: Option<f64>,
 }
 

@@ -106,6 +106,28 @@ pub fn optional_objects<'de, D: Deserializer<'de>, T: Deserialize<'de>>(d: D) ->
     d.deserialize_option(Optional(PhantomData))
 }
 
+/// An optional id: JSON Schema's `integer` admits a number with a zero fractional part
+/// (`5.0`), so the service does too; `null` is absent.
+///
+/// # Errors
+/// serde's error for anything but `null` or a whole number within `i64`.
+pub fn optional_whole_number<'de, D: Deserializer<'de>>(d: D) -> Result<Option<i64>, D::Error> {
+    #[derive(Deserialize)]
+    #[serde(untagged)]
+    enum Number {
+        Int(i64),
+        Float(f64),
+    }
+    // i64::MIN is -2^63 exactly; 2^63 is the first float past i64::MAX.
+    const LIMIT: f64 = 9_223_372_036_854_775_808.0;
+    match Option::<Number>::deserialize(d)? {
+        None => Ok(None),
+        Some(Number::Int(n)) => Ok(Some(n)),
+        Some(Number::Float(x)) if x.fract() == 0.0 && (-LIMIT..LIMIT).contains(&x) => Ok(Some(x as i64)),
+        Some(Number::Float(x)) => Err(serde::de::Error::custom(format!("must be a whole number, got {x}"))),
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use crate::wire::input::{parse_json, SnapshotDoc};

@@ -108,11 +108,28 @@ pub struct BookDoc {
 #[derive(Debug, Clone, Deserialize, ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ClosesDoc {
-    /// Daily closes in time order; `null` marks a gap (an error).
+    /// Daily closes in time order, at least two, each positive. A `null` (a gap in the
+    /// series) is read so that the error can name it, and refused.
+    #[schema(schema_with = closes_schema)]
     pub closes: Vec<Option<f64>>,
     /// Returns per year, default 252.
     #[serde(default)]
+    #[schema(exclusive_minimum = 0.0)]
     pub annualization: Option<f64>,
+}
+
+/// The schema of `closes`: what the service accepts (no gaps, positive values).
+fn closes_schema() -> utoipa::openapi::schema::Array {
+    use utoipa::openapi::schema::{ArrayBuilder, KnownFormat, ObjectBuilder, SchemaFormat, Type};
+    let close = ObjectBuilder::new()
+        .schema_type(Type::Number)
+        .format(Some(SchemaFormat::KnownFormat(KnownFormat::Double)))
+        .exclusive_minimum(Some(0.0));
+    ArrayBuilder::new()
+        .items(close)
+        .min_items(Some(2))
+        .description(Some("Daily closes in time order: at least two, each positive, no gaps."))
+        .build()
 }
 
 /// Realized variance of a series of closes.

@@ -32,6 +32,15 @@ pub fn realized_doc(closes: &[Option<f64>], annualization: Option<f64>) -> Resul
     }
     let values: Vec<f64> = closes.iter().flatten().copied().collect();
     let r = realized_variance(&values, a).map_err(|e| InputErrors::one(root.field("closes"), e.to_string()))?;
+    if !(r.variance.is_finite() && r.gamma_variance.is_finite()) {
+        return Err(InputErrors::one(
+            root.field("closes"),
+            format!(
+                "the closes and annualization give a variance beyond floating point (variance {}, gamma-weighted {})",
+                r.variance, r.gamma_variance
+            ),
+        ));
+    }
     Ok(RealizedOutDoc {
         variance: r.variance,
         volatility: r.variance.sqrt(),
