@@ -160,3 +160,31 @@ fn shared_contour_matches_mpmath_on_the_negative_axis() {
     assert!(checked >= 40 && derivatives >= 20, "too few points checked: {checked} values, {derivatives} derivatives");
     assert!(failures.is_empty(), "{} failures:\n{}", failures.len(), failures.join("\n"));
 }
+
+#[test]
+fn matches_mpmath_next_to_the_poles_of_gamma() {
+    // a = 1 - 2^-e (e = 30 to 52): every asymptotic coefficient 1/Gamma(b - a k) sits next
+    // to a pole. Reference: tests/fixtures/mittag_leffler/near_one_values.json (near_one.py
+    // beside it, mpmath). Same 1e-12 target; measured worst 1.1e-14 (a crate gamma of the
+    // rounded argument in place of numerics::gamma::rgamma_dd: 1.5e-4 at e = 52, z = -200).
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/fixtures/mittag_leffler/near_one_values.json");
+    let text = std::fs::read_to_string(path).expect("read mittag_leffler/near_one_values.json");
+    let json: serde_json::Value = serde_json::from_str(&text).expect("fixture is valid JSON");
+    let values = json["values"].as_array().expect("fixture has a values array");
+    assert!(values.len() >= 48, "only {} values", values.len());
+    let mut failures = Vec::new();
+    for e in values {
+        let exponent = e["e"].as_i64().expect("e") as i32;
+        let alpha = 1.0 - 2.0_f64.powi(-exponent);
+        let beta = alpha + e["beta_offset"].as_f64().expect("beta_offset");
+        let (z, want) = (e["z"].as_f64().expect("z"), e["value"].as_f64().expect("value"));
+        let got = mittag_leffler(alpha, beta, z).expect("inputs are in the domain");
+        let err = rel_err(got, want);
+        if err.is_nan() || err > REL_TOL {
+            failures.push(format!(
+                "a=1-2^-{exponent} b={beta} z={z}: computed {got:e}, mpmath {want:e}, relative error {err:e}"
+            ));
+        }
+    }
+    assert!(failures.is_empty(), "{} failures:\n{}", failures.len(), failures.join("\n"));
+}
