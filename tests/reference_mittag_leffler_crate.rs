@@ -11,7 +11,10 @@
 //! 3.4e-8 off relative and ours 7.6e-16). It also returns NaN at a = 1, b = 2, z = 0 (its
 //! closed form `(e^z - 1)/z` taken at z = 0; the value is 1).
 
+mod mittag_leffler_fixture;
+
 use logstrip::analytics::special::mittag_leffler::mittag_leffler;
+use mittag_leffler_fixture::field;
 use mittagleffler::MittagLeffler;
 
 /// Agreement asserted with the crate: `|ours - crate| <= CRATE_TOL (1 + |E|)`. The crate
@@ -75,14 +78,10 @@ fn agrees_with_the_mittagleffler_crate_on_the_domain() {
 
 #[test]
 fn mpmath_decides_where_the_two_disagree() {
-    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/tests/fixtures/mittag_leffler/values.json");
-    let text = std::fs::read_to_string(path).expect("read mittag_leffler/values.json");
-    let json: serde_json::Value = serde_json::from_str(&text).expect("fixture is valid JSON");
-    let values = json["values"].as_array().expect("fixture has a values array");
-    let field = |e: &serde_json::Value, name: &str| e[name].as_f64().expect("numeric fixture field");
+    let (_, values) = mittag_leffler_fixture::read("values.json");
     let (mut in_domain, mut decided) = (0, Vec::new());
     let mut failures = Vec::new();
-    for e in values {
+    for e in &values {
         let (a, b, z, want) = (field(e, "alpha"), field(e, "beta"), field(e, "z"), field(e, "value"));
         if !((0.5..=1.0).contains(&a) && b >= a && b <= a + 2.0 && (-200.0..=2.0).contains(&z)) {
             continue;
