@@ -15,7 +15,7 @@ use super::expiry_gaps::distinct_gaps;
 use crate::analytics::numerics::batched::{dot_gather, horner_many, horner_many2};
 use crate::analytics::numerics::digamma::digamma;
 use crate::analytics::numerics::exp::exp;
-use crate::analytics::numerics::gamma::rgamma_series_term;
+use crate::analytics::numerics::gamma::rgamma as rgamma_series_term;
 use crate::analytics::numerics::polynomial::terms_needed;
 use crate::analytics::special::mittag_leffler::shared_contour::{NegativeAxisChebyshev, NegativeAxisContour};
 use crate::analytics::special::mittag_leffler::{

@@ -1,35 +1,16 @@
 //! The digamma function `psi(x) = Gamma'(x) / Gamma(x)` for real `x > 0` (dimensionless),
-//! needed for derivatives of `1/Gamma(a k + b)` in `a`. `libm` has none, and the
-//! statistics crate that has one pulls a second version of nalgebra into the build.
+//! needed for derivatives of `1/Gamma(a k + b)` in `a`: the `special` crate's (recurrence
+//! up to 8, then the asymptotic series of Handbook of Mathematical Functions, NBS Applied
+//! Mathematics Series 55, 1964, formula 6.3.18), behind a guard for the arguments it leaves
+//! undefined.
 
-/// Arguments are shifted up by `psi(x) = psi(x + 1) - 1/x` until they reach this value, where
-/// the asymptotic series below (terms up to `x^-14`) has a first neglected term
-/// `3617 / (8160 x^16)` below 5e-17: the series is accurate to rounding from here on.
-const DIGAMMA_ASYMPTOTIC_FROM: f64 = 10.0;
-
-/// `psi(x)` for finite `x > 0`: recurrence up to 10 (`DIGAMMA_ASYMPTOTIC_FROM`), then the
-/// asymptotic expansion `ln x - 1/(2x) - sum_n B_2n / (2n x^2n)` (Handbook of Mathematical
-/// Functions, NBS Applied Mathematics Series 55, 1964, formula 6.3.18). Accurate to about
-/// `1e-15 * max(1, |psi(x)|)` for `x >= 1` (tested; the recurrence's rounding is what is left,
-/// most near the zero of `psi` at 1.46); non-positive or non-finite input gives NaN.
+/// `psi(x)` for finite `x > 0`, accurate to about `1e-15 * max(1, |psi(x)|)` (tested
+/// below); non-positive or non-finite input gives NaN.
 pub fn digamma(x: f64) -> f64 {
     if !(x > 0.0 && x.is_finite()) {
         return f64::NAN;
     }
-    let mut x = x;
-    let mut shift = 0.0;
-    while x < DIGAMMA_ASYMPTOTIC_FROM {
-        shift -= 1.0 / x;
-        x += 1.0;
-    }
-    let r = 1.0 / (x * x);
-    // B_2n / (2n): 1/12, -1/120, 1/252, -1/240, 1/132, -691/32760, 1/12
-    let tail = r
-        * (1.0 / 12.0
-            - r * (1.0 / 120.0
-                - r * (1.0 / 252.0
-                    - r * (1.0 / 240.0 - r * (1.0 / 132.0 - r * (691.0 / 32760.0 - r * (1.0 / 12.0)))))));
-    shift + x.ln() - 0.5 / x - tail
+    special::Gamma::digamma(x)
 }
 
 #[cfg(test)]

@@ -1,3 +1,5 @@
+//! Kept over `f64::exp`: the whole analysis takes 2.6% more instructions with it (3.8% with `libm::exp`; benches/kernels.rs).
+//!
 //! The exponential function, table-driven and inlinable, for the innermost loops.
 //!
 //! `f64::exp` calls the C library's `exp` through its error-reporting wrapper and
@@ -25,7 +27,7 @@ const FAST_RANGE: f64 = 708.0;
 /// `e^x`, within about one ulp (see the module documentation).
 #[inline]
 pub fn exp(x: f64) -> f64 {
-    if !(x.abs() <= FAST_RANGE) {
+    if cfg!(feature = "crate-kernels") || !(x.abs() <= FAST_RANGE) {
         return x.exp();
     }
     let shifted = x * SIZE_OVER_LN2 + SHIFTER;

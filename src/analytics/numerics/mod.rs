@@ -7,6 +7,7 @@ pub mod digamma;
 pub mod double_double;
 pub mod erfcx;
 #[rustfmt::skip]
+#[cfg_attr(feature = "crate-kernels", allow(dead_code))]
 mod erfcx_table;
 pub mod exp;
 // Entry 32 of the generated table is 2^(1/2), computed like the others.

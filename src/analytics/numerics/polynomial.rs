@@ -97,7 +97,7 @@ pub fn terms_needed(coeffs: &[f64], r: f64, tol: f64) -> usize {
 pub(crate) mod tests {
     use super::*;
     use crate::analytics::numerics::digamma::digamma;
-    use crate::analytics::numerics::gamma::rgamma_series_term;
+    use crate::analytics::numerics::gamma::rgamma;
 
     /// Coefficients like those the leverage model sums: `c_k = 1/Gamma(a k + a + 2)` (the
     /// series of `E_{a,a+2}`), its derivative's `(k+1) c_{k+1}` and the digamma-weighted
@@ -111,7 +111,7 @@ pub(crate) mod tests {
     impl Coefficients {
         pub(crate) fn new(alpha: f64) -> Self {
             let b = alpha + 2.0;
-            let coeffs: Vec<f64> = (0..60).map(|k| rgamma_series_term(alpha * k as f64 + b)).collect();
+            let coeffs: Vec<f64> = (0..60).map(|k| rgamma(alpha * k as f64 + b)).collect();
             let dcoeffs = (1..coeffs.len()).map(|k| k as f64 * coeffs[k]).collect();
             let psi_coeffs =
                 (0..coeffs.len()).map(|k| (k + 1) as f64 * digamma(alpha * k as f64 + b) * coeffs[k]).collect();

@@ -47,7 +47,7 @@ mod contour;
 pub mod shared_contour;
 
 use crate::analytics::numerics::double_double::{two_prod, two_sum};
-use crate::analytics::numerics::gamma::{rgamma, rgamma_dd, rgamma_series_term};
+use crate::analytics::numerics::gamma::{rgamma, rgamma_dd};
 use crate::analytics::numerics::polynomial::horner2;
 use alpha_one::{kummer_alpha_one, kummer_alpha_one_deriv};
 use branch_cut::real_integral;
@@ -396,7 +396,7 @@ impl Core {
         let peak_argument = 2.0 * rmax.powf(1.0 / a) + 2.0;
         let mut power = 1.0_f64;
         for k in 0..SERIES_MAX_TERMS {
-            let c = rgamma_series_term(a * k as f64 + b);
+            let c = rgamma(a * k as f64 + b);
             let term = (c * power).abs();
             coeffs.push(c);
             biggest = biggest.max(term);
