@@ -14,6 +14,37 @@
 //! valuation time are serialised, so two corrections posted at once get different
 //! revision numbers, and an identical repost neither adds a row nor uses up an id.
 
+/// A query of snapshot rows `s` with the ids of the previous and the next revision of
+/// the same underlying and `as_of` (`supersedes`, `superseded_by`); `next.id IS NULL`
+/// picks current revisions. Arguments: the store's names of the `as_of` and
+/// `stored_at` columns, columns to add (ending in a comma), the rest of the statement.
+macro_rules! select_with_revisions {
+    ($as_of:literal, $stored_at:literal, $columns:literal, $rest:literal) => {
+        concat!(
+            "SELECT s.id, s.underlying, s.",
+            $as_of,
+            ", s.",
+            $stored_at,
+            ", s.analysis, s.revision, ",
+            $columns,
+            " previous.id AS supersedes, next.id AS superseded_by FROM snapshots s \
+             LEFT JOIN snapshots previous ON previous.underlying = s.underlying \
+               AND previous.",
+            $as_of,
+            " = s.",
+            $as_of,
+            " AND previous.revision = s.revision - 1 \
+             LEFT JOIN snapshots next ON next.underlying = s.underlying \
+               AND next.",
+            $as_of,
+            " = s.",
+            $as_of,
+            " AND next.revision = s.revision + 1 ",
+            $rest
+        )
+    };
+}
+
 pub mod postgres;
 pub mod sqlite;
 
@@ -113,6 +144,19 @@ pub struct Insertion {
     pub revision: i64,
     /// Id of the revision this one replaced (the previous revision), if any.
     pub supersedes: Option<i64>,
+}
+
+impl Insertion {
+    /// The answer for content already stored as `stored`: nothing created.
+    fn found(stored: &StoredSnapshot) -> Self {
+        Self {
+            id: stored.id,
+            stored_at: stored.stored_at,
+            created: false,
+            revision: stored.revision,
+            supersedes: stored.supersedes,
+        }
+    }
 }
 
 /// A stored snapshot.

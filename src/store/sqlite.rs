@@ -29,22 +29,10 @@ fn from_micros(us: i64) -> Result<DateTime<Utc>, StoreError> {
     DateTime::from_timestamp_micros(us).ok_or_else(|| StoreError::Failed(format!("stored time {us} out of range")))
 }
 
-/// A query of snapshot rows `s` with the ids of the previous and the next revision of
-/// the same underlying and `as_of` (`supersedes`, `superseded_by`); `next.id IS NULL`
-/// picks current revisions. The first argument adds columns (ending in a comma), the
-/// second is the rest of the statement.
+/// `select_with_revisions!` over this store's columns.
 macro_rules! with_revisions {
     ($columns:literal, $rest:literal) => {
-        concat!(
-            "SELECT s.id, s.underlying, s.as_of_us, s.stored_at_us, s.analysis, s.revision, ",
-            $columns,
-            " previous.id AS supersedes, next.id AS superseded_by FROM snapshots s \
-             LEFT JOIN snapshots previous ON previous.underlying = s.underlying \
-               AND previous.as_of_us = s.as_of_us AND previous.revision = s.revision - 1 \
-             LEFT JOIN snapshots next ON next.underlying = s.underlying \
-               AND next.as_of_us = s.as_of_us AND next.revision = s.revision + 1 ",
-            $rest
-        )
+        select_with_revisions!("as_of_us", "stored_at_us", $columns, $rest)
     };
 }
 
@@ -118,14 +106,7 @@ impl Store for SqliteStore {
                 .await?;
         if let Some(row) = existing {
             tx.commit().await?;
-            let stored = snapshot_from_row(&row, false)?;
-            return Ok(Insertion {
-                id: stored.id,
-                stored_at: stored.stored_at,
-                created: false,
-                revision: stored.revision,
-                supersedes: stored.supersedes,
-            });
+            return Ok(Insertion::found(&snapshot_from_row(&row, false)?));
         }
         let previous: Option<(i64, i64)> = sqlx::query_as(
             "SELECT id, revision FROM snapshots WHERE underlying = ?1 AND as_of_us = ?2 \
