@@ -60,7 +60,7 @@ async fn stored_snapshot_round_trip_and_idempotent_repost() {
     let list: Value = server.client.get(server.url("/v1/underlyings")).send().await.unwrap().json().await.unwrap();
     assert_eq!(
         list,
-        json!({"underlyings": [{"underlying": "KESTREL50", "latest_as_of": doc["as_of"], "snapshots": 1}]})
+        json!({"underlyings": [{"underlying": "KESTREL50", "latest_as_of": doc["as_of"], "snapshots": 1, "superseded": 0}]})
     );
 
     problem(server.client.get(server.url("/v1/snapshots/999")).send().await.unwrap(), StatusCode::NOT_FOUND).await;
@@ -345,7 +345,8 @@ async fn history_pages_filters_and_csv() {
         assert_eq!(header.iter().collect::<Vec<_>>(), logstrip::api::history::CSV_HEADER.to_vec());
         let rows: Vec<csv::StringRecord> = reader.records().map(|r| r.unwrap()).collect();
         assert_eq!(rows.len(), 3 * 35, "one row per snapshot and expiry");
-        let vs: f64 = rows[0][6].parse().unwrap();
+        let column = header.iter().position(|h| h == "variance_swap").unwrap();
+        let vs: f64 = rows[0][column].parse().unwrap();
         assert!(vs > 0.0);
     }
 }

@@ -8,7 +8,7 @@ use super::history::{history_item, HistoryFit, HistoryItem};
 use super::query::query_params;
 use super::state::AppState;
 use crate::chart_drawing::{parameter_history_svg, term_structure_svg, TermPoint};
-use crate::store::{HistoryQuery, Store};
+use crate::store::{HistoryQuery, Revisions, Store};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 use axum::http::{header, HeaderValue, StatusCode};
@@ -58,7 +58,8 @@ fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
     get, path = "/v1/underlyings/{underlying}/latest/chart.svg", tag = "charts",
     params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50")),
     responses(
-        (status = 200, description = "Variance and gamma swap vols, forward vol, leverage swap with the model fit",
+        (status = 200, description = "Variance and gamma swap vols, forward vol, leverage swap with the model fit \
+(the current revision of the latest `as_of`)",
          body = String, content_type = "image/svg+xml", headers(("ETag" = String, description = "Entity tag of the snapshot drawn"))),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
@@ -126,7 +127,8 @@ fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<
     get, path = "/v1/underlyings/{underlying}/history/chart.svg", tag = "charts",
     params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50"), ParamChartQuery),
     responses(
-        (status = 200, description = "The parameter against valuation time", body = String, content_type = "image/svg+xml"),
+        (status = 200, description = "The parameter against valuation time (the current revision of each `as_of`)",
+         body = String, content_type = "image/svg+xml"),
         (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No fitted snapshot of this underlying in the range", body = ProblemDetails, content_type = "application/problem+json"),
@@ -160,6 +162,8 @@ pub async fn get_history_chart(
         to: parse_time("to", query.to.as_deref())?,
         after: None,
         limit: MAX_HISTORY_POINTS,
+        // One point per valuation time: a corrected snapshot replaces the older one.
+        revisions: Revisions::Current,
     };
     let records = state.store().history(&history).await.map_err(|e| state.store_failed("history", e))?;
     let mut values = Vec::new();

@@ -65,13 +65,23 @@ fn json_text(status: StatusCode, headers: &[(header::HeaderName, HeaderValue)], 
     response
 }
 
-/// The response body of a stored analysis: `id` and `stored_at`, then the analysis
+/// Where a stored snapshot stands among the revisions of its underlying and `as_of`.
+#[derive(Debug, Clone, Copy)]
+struct Standing {
+    revision: i64,
+    supersedes: Option<i64>,
+    superseded_by: Option<i64>,
+}
+
+/// The response body of a stored analysis: `id`, `stored_at`, `revision` (with
+/// `supersedes` and `superseded_by` when there are such revisions), then the analysis
 /// fields (`underlying`, `as_of`, ...), then the original `input` when asked for.
 /// Spliced as text: the stored analysis is JSON this service wrote, so it need not be
 /// parsed again for every read.
 fn stored_body(
     id: i64,
     stored_at: DateTime<Utc>,
+    standing: Standing,
     analysis_json: &str,
     input: Option<&(String, String)>,
 ) -> Result<String, ApiError> {
@@ -80,8 +90,18 @@ fn stored_body(
         .strip_prefix('{')
         .and_then(|rest| rest.strip_suffix('}'))
         .ok_or_else(|| ApiError::Internal(format!("stored analysis {id} is not a JSON object")))?;
-    let mut body = String::with_capacity(analysis_json.len() + 64);
-    body.push_str(&format!("{{\"id\":{id},\"stored_at\":\"{}\"", rfc3339(stored_at)));
+    let mut body = String::with_capacity(analysis_json.len() + 128);
+    body.push_str(&format!(
+        "{{\"id\":{id},\"stored_at\":\"{}\",\"revision\":{}",
+        rfc3339(stored_at),
+        standing.revision
+    ));
+    if let Some(earlier) = standing.supersedes {
+        body.push_str(&format!(",\"supersedes\":{earlier}"));
+    }
+    if let Some(later) = standing.superseded_by {
+        body.push_str(&format!(",\"superseded_by\":{later}"));
+    }
     if !fields.trim().is_empty() {
         body.push(',');
         body.push_str(fields);
@@ -100,7 +120,9 @@ fn stored_body(
 }
 
 fn stored_record_body(record: &StoredSnapshot) -> Result<String, ApiError> {
-    stored_body(record.id, record.stored_at, &record.analysis, record.input.as_ref())
+    let standing =
+        Standing { revision: record.revision, supersedes: record.supersedes, superseded_by: record.superseded_by };
+    stored_body(record.id, record.stored_at, standing, &record.analysis, record.input.as_ref())
 }
 
 /// Strong entity tag of a stored snapshot.
@@ -128,9 +150,11 @@ fn if_none_match(header_value: &str, tag: &str) -> bool {
                          (String = "text/csv", example = json!(examples::CSV_SNAPSHOT_EXAMPLE)))),
     params(CsvParams),
     responses(
-        (status = 201, description = "Stored; `Location` names the new resource", body = StoredAnalysisDoc,
-         headers(("Location" = String, description = "Path of the stored snapshot"))),
-        (status = 200, description = "The same content was stored before for this underlying and `as_of`; its id",
+        (status = 201, description = "Stored; `Location` names the new resource. Other content for a stored \
+underlying and `as_of` is a correction: its next `revision`, which `supersedes` the previous one",
+         body = StoredAnalysisDoc, headers(("Location" = String, description = "Path of the stored snapshot"))),
+        (status = 200, description = "The same content was stored before for this underlying and `as_of`: that \
+revision, with its id (`superseded_by` when a later correction replaced it); nothing is added",
          body = StoredAnalysisDoc, headers(("Location" = String, description = "Path of the stored snapshot"))),
         (status = 400, description = "Malformed JSON", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
@@ -151,7 +175,8 @@ pub async fn post_snapshot(State(state): State<AppState>, body: SnapshotText) ->
         .map_err(|e| ApiError::Internal(e.to_string()))?;
     if inserted.created {
         state.announce_change();
-        let body = stored_body(inserted.id, inserted.stored_at, &analysis_json, None)?;
+        let standing = Standing { revision: inserted.revision, supersedes: inserted.supersedes, superseded_by: None };
+        let body = stored_body(inserted.id, inserted.stored_at, standing, &analysis_json, None)?;
         Ok(json_text(StatusCode::CREATED, &[(header::LOCATION, location)], body))
     } else {
         let record = state
@@ -283,7 +308,7 @@ pub async fn get_snapshot(
     Ok(json_text(StatusCode::OK, &[(header::ETAG, etag_header(record.id))], stored_record_body(&record)?))
 }
 
-/// Every underlying with its latest `as_of` and snapshot count.
+/// Every underlying with its latest `as_of`, snapshot count and superseded revisions.
 #[utoipa::path(
     get, path = "/v1/underlyings", tag = "underlyings",
     responses(

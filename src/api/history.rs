@@ -1,12 +1,13 @@
 //! `GET /v1/underlyings/{underlying}/history`: fits and term-structure points over a
 //! time range, paged by an opaque cursor, as JSON or CSV (one row per snapshot and
-//! expiry).
+//! expiry). The current revision of each `as_of` by default; every revision with
+//! `revisions=all`.
 
 use super::error::{ApiError, ProblemDetails};
 use super::query::query_params;
 use super::state::AppState;
 use super::timestamps::rfc3339;
-use crate::store::{HistoryPosition, HistoryQuery, Store, StoredSnapshot};
+use crate::store::{HistoryPosition, HistoryQuery, Revisions, Store, StoredSnapshot};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 use axum::http::{header, HeaderMap, HeaderValue};
@@ -43,6 +44,31 @@ pub struct HistoryParams {
     /// `json` (default) or `csv`; `Accept: text/csv` also selects CSV.
     #[param(value_type = Option<HistoryFormatDoc>, inline, example = "json")]
     pub format: Option<String>,
+    /// `current` (default): the newest revision of each `as_of`; `all`: every
+    /// revision, older ones with `superseded_by`.
+    #[param(value_type = Option<RevisionChoice>, inline, example = "current")]
+    pub revisions: Option<String>,
+}
+
+/// Which revisions the history lists.
+#[derive(Debug, Clone, Copy, Serialize, ToSchema)]
+#[serde(rename_all = "lowercase")]
+pub enum RevisionChoice {
+    /// The newest revision of each `as_of`.
+    Current,
+    /// Every revision.
+    All,
+}
+
+fn parse_revisions(text: Option<&str>) -> Result<Revisions, ApiError> {
+    match text {
+        None | Some("current") => Ok(Revisions::Current),
+        Some("all") => Ok(Revisions::All),
+        Some(other) => Err(ApiError::Parameter {
+            name: "revisions",
+            message: format!("must be `current` or `all`, got {other:?}"),
+        }),
+    }
 }
 
 /// The formats of a history page.
@@ -76,6 +102,12 @@ pub struct HistoryItem {
     pub as_of: String,
     /// Commit time, RFC 3339.
     pub stored_at: String,
+    /// Revision of this `as_of`, from 1 (each correction adds one).
+    #[schema(minimum = 1, example = 1)]
+    pub revision: i64,
+    /// Id of the revision that replaced this one (only with `revisions=all`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub superseded_by: Option<i64>,
     /// The model fit, when one was made.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub fit: Option<HistoryFit>,
@@ -176,7 +208,15 @@ pub fn history_item(record: &StoredSnapshot) -> Result<HistoryItem, ApiError> {
             leverage_rmse: f.leverage_rmse,
         }
     });
-    Ok(HistoryItem { id: record.id, as_of: rfc3339(record.as_of), stored_at: rfc3339(record.stored_at), fit, curve })
+    Ok(HistoryItem {
+        id: record.id,
+        as_of: rfc3339(record.as_of),
+        stored_at: rfc3339(record.stored_at),
+        revision: record.revision,
+        superseded_by: record.superseded_by,
+        fit,
+        curve,
+    })
 }
 
 /// Most hexadecimal digits of each part of a cursor: 15 digits (60 bits) hold every
@@ -267,11 +307,13 @@ fn wants_csv(format: Option<&str>, headers: &HeaderMap) -> Result<bool, ApiError
 }
 
 /// CSV columns, one row per snapshot and expiry.
-pub const CSV_HEADER: [&str; 17] = [
+pub const CSV_HEADER: [&str; 19] = [
     "snapshot_id",
     "underlying",
     "as_of",
     "stored_at",
+    "revision",
+    "superseded_by",
     "tau",
     "expiry",
     "variance_swap",
@@ -310,6 +352,8 @@ fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
                     page.underlying.clone(),
                     item.as_of.clone(),
                     item.stored_at.clone(),
+                    item.revision.to_string(),
+                    item.superseded_by.map(|id| id.to_string()).unwrap_or_default(),
                     number(p.tau),
                     p.expiry.clone().unwrap_or_default(),
                     number(p.variance_swap),
@@ -339,7 +383,8 @@ fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
         HistoryParams
     ),
     responses(
-        (status = 200, description = "A page of history; `Link` with `rel=\"next\"` when more follow",
+        (status = 200, description = "A page of history (the current revision of each `as_of`, or every \
+revision with `revisions=all`); `Link` with `rel=\"next\"` when more follow",
          content((HistoryPage = "application/json"), (String = "text/csv")),
          headers(("Link" = String, description = "URL of the next page (RFC 8288)"))),
         (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
@@ -364,6 +409,7 @@ pub async fn get_history(
         to: parse_time("to", params.to.as_deref())?,
         after: params.cursor.as_deref().map(decode_cursor).transpose()?,
         limit: parse_limit(params.limit.as_deref())?,
+        revisions: parse_revisions(params.revisions.as_deref())?,
     };
     let store_error = |e| state.store_failed("history", e);
     // One row more than asked tells whether a next page exists.
@@ -393,6 +439,7 @@ pub async fn get_history(
             ("to", params.to.as_deref()),
             ("limit", params.limit.as_deref()),
             ("format", params.format.as_deref()),
+            ("revisions", params.revisions.as_deref()),
             ("cursor", Some(cursor)),
         ]);
         next = format!("</v1/underlyings/{}/history?{next}>; rel=\"next\"", percent_encode(&underlying));
@@ -447,6 +494,15 @@ mod tests {
         for text in ["0-0", "fffffffffffffff-fffffffffffffff", "nfffffffffffffff-1", "6618015388e00-27"] {
             assert!(decode_cursor(text).is_ok(), "{text:?} was refused");
         }
+    }
+
+    #[test]
+    fn revisions_are_current_or_all() {
+        assert_eq!(parse_revisions(None).unwrap(), Revisions::Current);
+        assert_eq!(parse_revisions(Some("current")).unwrap(), Revisions::Current);
+        assert_eq!(parse_revisions(Some("all")).unwrap(), Revisions::All);
+        assert!(parse_revisions(Some("ALL")).is_err());
+        assert!(parse_revisions(Some("")).is_err());
     }
 
     #[test]

@@ -8,14 +8,25 @@ use serde::Serialize;
 use serde_json::Value;
 use utoipa::ToSchema;
 
-/// A stored analysis: the analysis fields plus `id`, `stored_at` and, with
-/// `?include=input`, the original input.
+/// A stored analysis: the analysis fields plus `id`, `stored_at`, the revision and,
+/// with `?include=input`, the original input.
 #[derive(Debug, Serialize, ToSchema)]
 pub struct StoredAnalysisDoc {
     /// Snapshot id.
     pub id: i64,
     /// Commit time, RFC 3339.
     pub stored_at: String,
+    /// Revision of this underlying and `as_of`: 1 for the first snapshot stored, one
+    /// more for each correction (other content for the same underlying and `as_of`).
+    #[schema(minimum = 1, example = 1)]
+    pub revision: i64,
+    /// Id of the previous revision, which this one replaced; absent for revision 1.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub supersedes: Option<i64>,
+    /// Id of the next revision, which replaced this one; absent while this is the
+    /// current revision.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub superseded_by: Option<i64>,
     /// The analysis.
     #[serde(flatten)]
     pub analysis: output::AnalysisDoc,
@@ -47,14 +58,17 @@ pub struct UnderlyingDoc {
     pub underlying: String,
     /// Latest valuation time, RFC 3339.
     pub latest_as_of: String,
-    /// Number of stored snapshots.
+    /// Number of valuation times stored (a corrected snapshot counts once).
     pub snapshots: i64,
+    /// Revisions replaced by a later correction, still stored (see `revisions=all` on
+    /// the history).
+    pub superseded: i64,
 }
 
 /// Every underlying in the store.
 #[derive(Debug, Serialize, ToSchema)]
 #[schema(example = json!({"underlyings": [
-    {"underlying": "KESTREL50", "latest_as_of": "2026-11-30T15:30:00Z", "snapshots": 38}
+    {"underlying": "KESTREL50", "latest_as_of": "2026-11-30T15:30:00Z", "snapshots": 38, "superseded": 0}
 ]}))]
 pub struct UnderlyingsDoc {
     /// By name.
@@ -70,6 +84,7 @@ impl From<Vec<UnderlyingSummary>> for UnderlyingsDoc {
                     underlying: u.underlying,
                     latest_as_of: rfc3339(u.latest_as_of),
                     snapshots: u.snapshots,
+                    superseded: u.superseded,
                 })
                 .collect(),
         }

@@ -5,6 +5,45 @@
 //! The store keeps, per snapshot, the original input text (so any result can be
 //! recomputed) and the analysis as JSON text. It knows nothing of HTTP; the API layer
 //! maps [`StoreError`] to responses.
+//!
+//! A snapshot posted again for the same underlying and `as_of` with other content is a
+//! correction: it is stored as the next *revision* of that valuation time (1 for the
+//! first, then 2, 3, ...). The newest revision supersedes the older ones in
+//! [`Store::latest`], [`Store::history`] (unless every revision is asked for) and
+//! [`Store::underlyings`]; the older ones stay stored and readable by id. Writers of one
+//! valuation time are serialised, so two corrections posted at once get different
+//! revision numbers, and an identical repost neither adds a row nor uses up an id.
+
+/// A query of snapshot rows `s` with the ids of the previous and the next revision of
+/// the same underlying and `as_of` (`supersedes`, `superseded_by`); `next.id IS NULL`
+/// picks current revisions. Arguments: the store's names of the `as_of` and
+/// `stored_at` columns, columns to add (ending in a comma), the rest of the statement.
+macro_rules! select_with_revisions {
+    ($as_of:literal, $stored_at:literal, $columns:literal, $rest:literal) => {
+        concat!(
+            "SELECT s.id, s.underlying, s.",
+            $as_of,
+            ", s.",
+            $stored_at,
+            ", s.analysis, s.revision, ",
+            $columns,
+            " previous.id AS supersedes, next.id AS superseded_by FROM snapshots s \
+             LEFT JOIN snapshots previous ON previous.underlying = s.underlying \
+               AND previous.",
+            $as_of,
+            " = s.",
+            $as_of,
+            " AND previous.revision = s.revision - 1 \
+             LEFT JOIN snapshots next ON next.underlying = s.underlying \
+               AND next.",
+            $as_of,
+            " = s.",
+            $as_of,
+            " AND next.revision = s.revision + 1 ",
+            $rest
+        )
+    };
+}
 
 pub mod postgres;
 pub mod sqlite;
@@ -101,6 +140,23 @@ pub struct Insertion {
     pub stored_at: DateTime<Utc>,
     /// `false` when the same content was already stored.
     pub created: bool,
+    /// Revision of the row within its underlying and `as_of`, from 1.
+    pub revision: i64,
+    /// Id of the revision this one replaced (the previous revision), if any.
+    pub supersedes: Option<i64>,
+}
+
+impl Insertion {
+    /// The answer for content already stored as `stored`: nothing created.
+    fn found(stored: &StoredSnapshot) -> Self {
+        Self {
+            id: stored.id,
+            stored_at: stored.stored_at,
+            created: false,
+            revision: stored.revision,
+            supersedes: stored.supersedes,
+        }
+    }
 }
 
 /// A stored snapshot.
@@ -118,6 +174,12 @@ pub struct StoredSnapshot {
     pub analysis: String,
     /// The input, when asked for: (media type, text).
     pub input: Option<(String, String)>,
+    /// Revision within the underlying and `as_of`, from 1.
+    pub revision: i64,
+    /// Id of the previous revision, which this one replaced.
+    pub supersedes: Option<i64>,
+    /// Id of the next revision, which replaced this one; `None` for the current one.
+    pub superseded_by: Option<i64>,
 }
 
 /// One underlying with its latest valuation time and number of snapshots.
@@ -127,8 +189,20 @@ pub struct UnderlyingSummary {
     pub underlying: String,
     /// Latest `as_of`.
     pub latest_as_of: DateTime<Utc>,
-    /// Number of stored snapshots.
+    /// Number of valuation times stored (a corrected snapshot counts once).
     pub snapshots: i64,
+    /// Number of revisions replaced by a later correction (still stored).
+    pub superseded: i64,
+}
+
+/// Which revisions a history read returns.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum Revisions {
+    /// Only the newest revision of each `as_of`.
+    #[default]
+    Current,
+    /// Every revision, older ones included.
+    All,
 }
 
 /// Where a history page starts: after this `(as_of, id)` in ascending order.
@@ -141,7 +215,7 @@ pub struct HistoryPosition {
 }
 
 /// A history request: snapshots of one underlying with `from <= as_of < to`, in
-/// ascending `(as_of, id)` order.
+/// ascending `(as_of, id)` order (within one `as_of`, ids rise with the revision).
 #[derive(Debug, Clone)]
 pub struct HistoryQuery {
     /// Underlying name.
@@ -154,24 +228,30 @@ pub struct HistoryQuery {
     pub after: Option<HistoryPosition>,
     /// Maximum number of rows.
     pub limit: u32,
+    /// The newest revision of each `as_of` only, or all.
+    pub revisions: Revisions,
 }
 
 /// The history store. Every method is one transaction: a reader sees a snapshot either
 /// completely or not at all.
 pub trait Store: Send + Sync {
     /// Stores a snapshot unless the same content is already stored for the same
-    /// underlying and `as_of`; returns after the transaction committed.
+    /// underlying and `as_of`; returns after the transaction committed. Other content
+    /// for a stored underlying and `as_of` becomes its next revision. An identical
+    /// repost adds no row and consumes no id.
     fn insert(&self, snapshot: NewSnapshot) -> impl Future<Output = Result<Insertion, StoreError>> + Send;
     /// A stored snapshot by id, with its input when `with_input`.
     fn get(&self, id: i64, with_input: bool)
         -> impl Future<Output = Result<Option<StoredSnapshot>, StoreError>> + Send;
-    /// The latest snapshot of an underlying (largest `as_of`, then largest id).
+    /// The latest snapshot of an underlying (largest `as_of`, its newest revision).
     fn latest(&self, underlying: &str) -> impl Future<Output = Result<Option<StoredSnapshot>, StoreError>> + Send;
     /// The id of [`Store::latest`], cheaply.
     fn latest_id(&self, underlying: &str) -> impl Future<Output = Result<Option<i64>, StoreError>> + Send;
-    /// Every underlying with its latest `as_of` and snapshot count, by name.
+    /// Every underlying with its latest `as_of`, number of valuation times and of
+    /// superseded revisions, by name.
     fn underlyings(&self) -> impl Future<Output = Result<Vec<UnderlyingSummary>, StoreError>> + Send;
-    /// A page of history (without inputs).
+    /// A page of history (without inputs): the newest revision of each `as_of`, or
+    /// every revision.
     fn history(&self, query: &HistoryQuery) -> impl Future<Output = Result<Vec<StoredSnapshot>, StoreError>> + Send;
     /// Checks the store answers.
     fn ping(&self) -> impl Future<Output = Result<(), StoreError>> + Send;

@@ -2,7 +2,7 @@
 //! sends a `NOTIFY` on [`CHANNEL`] (delivered at commit) so that replicas wake their
 //! long-polling readers.
 
-use super::{HistoryQuery, Insertion, NewSnapshot, Store, StoreError, StoredSnapshot, UnderlyingSummary};
+use super::{HistoryQuery, Insertion, NewSnapshot, Revisions, Store, StoreError, StoredSnapshot, UnderlyingSummary};
 use sqlx::postgres::{PgConnectOptions, PgPool, PgPoolOptions, PgRow};
 use sqlx::Row;
 use std::str::FromStr;
@@ -22,6 +22,13 @@ pub struct PostgresStore {
     url: String,
 }
 
+/// `select_with_revisions!` over this store's columns.
+macro_rules! with_revisions {
+    ($columns:literal, $rest:literal) => {
+        select_with_revisions!("as_of", "stored_at", $columns, $rest)
+    };
+}
+
 fn snapshot_from_row(row: &PgRow, with_input: bool) -> Result<StoredSnapshot, StoreError> {
     let input = if with_input {
         Some((row.try_get::<String, _>("input_media_type")?, row.try_get::<String, _>("input")?))
@@ -35,6 +42,9 @@ fn snapshot_from_row(row: &PgRow, with_input: bool) -> Result<StoredSnapshot, St
         stored_at: row.try_get("stored_at")?,
         analysis: row.try_get("analysis")?,
         input,
+        revision: i64::from(row.try_get::<i32, _>("revision")?),
+        supersedes: row.try_get("supersedes")?,
+        superseded_by: row.try_get("superseded_by")?,
     })
 }
 
@@ -64,11 +74,39 @@ impl PostgresStore {
 impl Store for PostgresStore {
     async fn insert(&self, s: NewSnapshot) -> Result<Insertion, StoreError> {
         let mut tx = self.pool.begin().await?;
-        let inserted = sqlx::query(
-            "INSERT INTO snapshots (underlying, as_of, content_sha256, input_media_type, input, analysis) \
-             VALUES ($1, $2, $3, $4, $5, $6) \
-             ON CONFLICT (underlying, as_of, content_sha256) DO NOTHING \
-             RETURNING id, stored_at",
+        // Writers of one underlying and `as_of` queue on a lock held until commit; each
+        // statement after it sees what the previous holder committed (read committed).
+        // So the look-up below finds an identical snapshot stored a moment ago instead
+        // of a failed insert using up a sequence value, and two corrections posted at
+        // once get consecutive revisions.
+        sqlx::query("SELECT pg_advisory_xact_lock(hashtextextended($1, $2))")
+            .bind(&s.underlying)
+            .bind(s.as_of.timestamp_micros())
+            .execute(&mut *tx)
+            .await?;
+        let existing =
+            sqlx::query(with_revisions!("", "WHERE s.underlying = $1 AND s.as_of = $2 AND s.content_sha256 = $3"))
+                .bind(&s.underlying)
+                .bind(s.as_of)
+                .bind(&s.content_sha256)
+                .fetch_optional(&mut *tx)
+                .await?;
+        if let Some(row) = existing {
+            tx.commit().await?;
+            return Ok(Insertion::found(&snapshot_from_row(&row, false)?));
+        }
+        let previous: Option<(i64, i32)> = sqlx::query_as(
+            "SELECT id, revision FROM snapshots WHERE underlying = $1 AND as_of = $2 \
+             ORDER BY revision DESC LIMIT 1",
+        )
+        .bind(&s.underlying)
+        .bind(s.as_of)
+        .fetch_optional(&mut *tx)
+        .await?;
+        let revision = previous.map_or(1, |(_, r)| r.saturating_add(1));
+        let row = sqlx::query(
+            "INSERT INTO snapshots (underlying, as_of, content_sha256, input_media_type, input, analysis, revision) \
+             VALUES ($1, $2, $3, $4, $5, $6, $7) RETURNING id, stored_at",
         )
         .bind(&s.underlying)
         .bind(s.as_of)
@@ -76,40 +114,33 @@ impl Store for PostgresStore {
         .bind(&s.input_media_type)
         .bind(&s.input)
         .bind(&s.analysis)
-        .fetch_optional(&mut *tx)
+        .bind(revision)
+        .fetch_one(&mut *tx)
         .await?;
-        let (row, created) = match inserted {
-            Some(row) => (row, true),
-            None => {
-                let row = sqlx::query(
-                    "SELECT id, stored_at FROM snapshots \
-                     WHERE underlying = $1 AND as_of = $2 AND content_sha256 = $3",
-                )
-                .bind(&s.underlying)
-                .bind(s.as_of)
-                .bind(&s.content_sha256)
-                .fetch_one(&mut *tx)
-                .await?;
-                (row, false)
-            }
-        };
-        if created {
-            sqlx::query("SELECT pg_notify($1, $2)").bind(CHANNEL).bind(&s.underlying).execute(&mut *tx).await?;
-        }
+        sqlx::query("SELECT pg_notify($1, $2)").bind(CHANNEL).bind(&s.underlying).execute(&mut *tx).await?;
         tx.commit().await?;
-        Ok(Insertion { id: row.try_get("id")?, stored_at: row.try_get("stored_at")?, created })
+        Ok(Insertion {
+            id: row.try_get("id")?,
+            stored_at: row.try_get("stored_at")?,
+            created: true,
+            revision: i64::from(revision),
+            supersedes: previous.map(|(id, _)| id),
+        })
     }
 
     async fn get(&self, id: i64, with_input: bool) -> Result<Option<StoredSnapshot>, StoreError> {
-        let row = sqlx::query("SELECT * FROM snapshots WHERE id = $1").bind(id).fetch_optional(&self.pool).await?;
+        let row = sqlx::query(with_revisions!("s.input_media_type, s.input,", "WHERE s.id = $1"))
+            .bind(id)
+            .fetch_optional(&self.pool)
+            .await?;
         row.map(|r| snapshot_from_row(&r, with_input)).transpose()
     }
 
     async fn latest(&self, underlying: &str) -> Result<Option<StoredSnapshot>, StoreError> {
-        let row = sqlx::query(
-            "SELECT id, underlying, as_of, stored_at, analysis FROM snapshots \
-             WHERE underlying = $1 ORDER BY as_of DESC, id DESC LIMIT 1",
-        )
+        let row = sqlx::query(with_revisions!(
+            "",
+            "WHERE s.underlying = $1 AND next.id IS NULL ORDER BY s.as_of DESC LIMIT 1"
+        ))
         .bind(underlying)
         .fetch_optional(&self.pool)
         .await?;
@@ -117,16 +148,21 @@ impl Store for PostgresStore {
     }
 
     async fn latest_id(&self, underlying: &str) -> Result<Option<i64>, StoreError> {
-        Ok(sqlx::query_scalar("SELECT id FROM snapshots WHERE underlying = $1 ORDER BY as_of DESC, id DESC LIMIT 1")
-            .bind(underlying)
-            .fetch_optional(&self.pool)
-            .await?)
+        Ok(sqlx::query_scalar(
+            "SELECT id FROM snapshots WHERE underlying = $1 ORDER BY as_of DESC, revision DESC LIMIT 1",
+        )
+        .bind(underlying)
+        .fetch_optional(&self.pool)
+        .await?)
     }
 
     async fn underlyings(&self) -> Result<Vec<UnderlyingSummary>, StoreError> {
+        // Revisions run 1, 2, ... without gaps, so the rows of revision 1 count the
+        // valuation times.
         let rows = sqlx::query(
-            "SELECT underlying, MAX(as_of) AS latest, COUNT(*) AS n FROM snapshots \
-             GROUP BY underlying ORDER BY underlying",
+            "SELECT underlying, MAX(as_of) AS latest, COUNT(*) FILTER (WHERE revision = 1) AS n, \
+             COUNT(*) FILTER (WHERE revision > 1) AS superseded \
+             FROM snapshots GROUP BY underlying ORDER BY underlying",
         )
         .fetch_all(&self.pool)
         .await?;
@@ -136,25 +172,28 @@ impl Store for PostgresStore {
                     underlying: r.try_get("underlying")?,
                     latest_as_of: r.try_get("latest")?,
                     snapshots: r.try_get("n")?,
+                    superseded: r.try_get("superseded")?,
                 })
             })
             .collect()
     }
 
     async fn history(&self, q: &HistoryQuery) -> Result<Vec<StoredSnapshot>, StoreError> {
-        let rows = sqlx::query(
-            "SELECT id, underlying, as_of, stored_at, analysis FROM snapshots \
-             WHERE underlying = $1 \
-               AND ($2::timestamptz IS NULL OR as_of >= $2) \
-               AND ($3::timestamptz IS NULL OR as_of < $3) \
-               AND ($4::timestamptz IS NULL OR as_of > $4 OR (as_of = $4 AND id > $5)) \
-             ORDER BY as_of, id LIMIT $6",
-        )
+        let rows = sqlx::query(with_revisions!(
+            "",
+            "WHERE s.underlying = $1 \
+               AND ($2::timestamptz IS NULL OR s.as_of >= $2) \
+               AND ($3::timestamptz IS NULL OR s.as_of < $3) \
+               AND ($4::timestamptz IS NULL OR s.as_of > $4 OR (s.as_of = $4 AND s.id > $5)) \
+               AND ($6::boolean OR next.id IS NULL) \
+             ORDER BY s.as_of, s.id LIMIT $7"
+        ))
         .bind(&q.underlying)
         .bind(q.from)
         .bind(q.to)
         .bind(q.after.map(|p| p.as_of))
         .bind(q.after.map(|p| p.id))
+        .bind(q.revisions == Revisions::All)
         .bind(i64::from(q.limit))
         .fetch_all(&self.pool)
         .await?;

@@ -1,7 +1,7 @@
 //! The embedded store: one SQLite file in WAL mode with `synchronous=FULL`, so a
 //! committed snapshot survives a crash of the process or the machine.
 
-use super::{HistoryQuery, Insertion, NewSnapshot, Store, StoreError, StoredSnapshot, UnderlyingSummary};
+use super::{HistoryQuery, Insertion, NewSnapshot, Revisions, Store, StoreError, StoredSnapshot, UnderlyingSummary};
 use chrono::{DateTime, Utc};
 use sqlx::sqlite::{
     SqliteConnectOptions, SqliteJournalMode, SqlitePool, SqlitePoolOptions, SqliteRow, SqliteSynchronous,
@@ -29,6 +29,13 @@ fn from_micros(us: i64) -> Result<DateTime<Utc>, StoreError> {
     DateTime::from_timestamp_micros(us).ok_or_else(|| StoreError::Failed(format!("stored time {us} out of range")))
 }
 
+/// `select_with_revisions!` over this store's columns.
+macro_rules! with_revisions {
+    ($columns:literal, $rest:literal) => {
+        select_with_revisions!("as_of_us", "stored_at_us", $columns, $rest)
+    };
+}
+
 fn snapshot_from_row(row: &SqliteRow, with_input: bool) -> Result<StoredSnapshot, StoreError> {
     let input = if with_input {
         Some((row.try_get::<String, _>("input_media_type")?, row.try_get::<String, _>("input")?))
@@ -42,6 +49,9 @@ fn snapshot_from_row(row: &SqliteRow, with_input: bool) -> Result<StoredSnapshot
         stored_at: from_micros(row.try_get("stored_at_us")?)?,
         analysis: row.try_get("analysis")?,
         input,
+        revision: row.try_get("revision")?,
+        supersedes: row.try_get("supersedes")?,
+        superseded_by: row.try_get("superseded_by")?,
     })
 }
 
@@ -83,52 +93,69 @@ impl SqliteStore {
 
 impl Store for SqliteStore {
     async fn insert(&self, s: NewSnapshot) -> Result<Insertion, StoreError> {
-        let mut tx = self.pool.begin().await?;
+        // `BEGIN IMMEDIATE` takes the write lock before the look-up, so no other writer
+        // stores a revision of the same valuation time in between.
+        let mut tx = self.pool.begin_with("BEGIN IMMEDIATE").await?;
         let as_of_us = to_micros(s.as_of);
-        let inserted = sqlx::query(
-            "INSERT INTO snapshots (underlying, as_of_us, stored_at_us, content_sha256, input_media_type, input, analysis) \
-             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7) \
-             ON CONFLICT (underlying, as_of_us, content_sha256) DO NOTHING \
-             RETURNING id, stored_at_us",
+        let existing =
+            sqlx::query(with_revisions!("", "WHERE s.underlying = ?1 AND s.as_of_us = ?2 AND s.content_sha256 = ?3"))
+                .bind(&s.underlying)
+                .bind(as_of_us)
+                .bind(&s.content_sha256)
+                .fetch_optional(&mut *tx)
+                .await?;
+        if let Some(row) = existing {
+            tx.commit().await?;
+            return Ok(Insertion::found(&snapshot_from_row(&row, false)?));
+        }
+        let previous: Option<(i64, i64)> = sqlx::query_as(
+            "SELECT id, revision FROM snapshots WHERE underlying = ?1 AND as_of_us = ?2 \
+             ORDER BY revision DESC LIMIT 1",
         )
         .bind(&s.underlying)
         .bind(as_of_us)
-        .bind(to_micros(Utc::now()))
+        .fetch_optional(&mut *tx)
+        .await?;
+        let revision = previous.map_or(1, |(_, r)| r + 1);
+        let stored_at_us = to_micros(Utc::now());
+        let id: i64 = sqlx::query_scalar(
+            "INSERT INTO snapshots \
+             (underlying, as_of_us, stored_at_us, content_sha256, input_media_type, input, analysis, revision) \
+             VALUES (?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8) RETURNING id",
+        )
+        .bind(&s.underlying)
+        .bind(as_of_us)
+        .bind(stored_at_us)
         .bind(&s.content_sha256)
         .bind(&s.input_media_type)
         .bind(&s.input)
         .bind(&s.analysis)
-        .fetch_optional(&mut *tx)
+        .bind(revision)
+        .fetch_one(&mut *tx)
         .await?;
-        let (row, created) = match inserted {
-            Some(row) => (row, true),
-            None => {
-                let row = sqlx::query(
-                    "SELECT id, stored_at_us FROM snapshots \
-                     WHERE underlying = ?1 AND as_of_us = ?2 AND content_sha256 = ?3",
-                )
-                .bind(&s.underlying)
-                .bind(as_of_us)
-                .bind(&s.content_sha256)
-                .fetch_one(&mut *tx)
-                .await?;
-                (row, false)
-            }
-        };
         tx.commit().await?;
-        Ok(Insertion { id: row.try_get("id")?, stored_at: from_micros(row.try_get("stored_at_us")?)?, created })
+        Ok(Insertion {
+            id,
+            stored_at: from_micros(stored_at_us)?,
+            created: true,
+            revision,
+            supersedes: previous.map(|(id, _)| id),
+        })
     }
 
     async fn get(&self, id: i64, with_input: bool) -> Result<Option<StoredSnapshot>, StoreError> {
-        let row = sqlx::query("SELECT * FROM snapshots WHERE id = ?1").bind(id).fetch_optional(&self.pool).await?;
+        let row = sqlx::query(with_revisions!("s.input_media_type, s.input,", "WHERE s.id = ?1"))
+            .bind(id)
+            .fetch_optional(&self.pool)
+            .await?;
         row.map(|r| snapshot_from_row(&r, with_input)).transpose()
     }
 
     async fn latest(&self, underlying: &str) -> Result<Option<StoredSnapshot>, StoreError> {
-        let row = sqlx::query(
-            "SELECT id, underlying, as_of_us, stored_at_us, analysis FROM snapshots \
-             WHERE underlying = ?1 ORDER BY as_of_us DESC, id DESC LIMIT 1",
-        )
+        let row = sqlx::query(with_revisions!(
+            "",
+            "WHERE s.underlying = ?1 AND next.id IS NULL ORDER BY s.as_of_us DESC LIMIT 1"
+        ))
         .bind(underlying)
         .fetch_optional(&self.pool)
         .await?;
@@ -136,16 +163,20 @@ impl Store for SqliteStore {
     }
 
     async fn latest_id(&self, underlying: &str) -> Result<Option<i64>, StoreError> {
-        Ok(sqlx::query_scalar("SELECT id FROM snapshots WHERE underlying = ?1 ORDER BY as_of_us DESC, id DESC LIMIT 1")
-            .bind(underlying)
-            .fetch_optional(&self.pool)
-            .await?)
+        Ok(sqlx::query_scalar(
+            "SELECT id FROM snapshots WHERE underlying = ?1 ORDER BY as_of_us DESC, revision DESC LIMIT 1",
+        )
+        .bind(underlying)
+        .fetch_optional(&self.pool)
+        .await?)
     }
 
     async fn underlyings(&self) -> Result<Vec<UnderlyingSummary>, StoreError> {
+        // Revisions run 1, 2, ... without gaps, so the rows of revision 1 count the
+        // valuation times.
         let rows = sqlx::query(
-            "SELECT underlying, MAX(as_of_us) AS latest_us, COUNT(*) AS n FROM snapshots \
-             GROUP BY underlying ORDER BY underlying",
+            "SELECT underlying, MAX(as_of_us) AS latest_us, SUM(revision = 1) AS n, SUM(revision > 1) AS superseded \
+             FROM snapshots GROUP BY underlying ORDER BY underlying",
         )
         .fetch_all(&self.pool)
         .await?;
@@ -155,25 +186,28 @@ impl Store for SqliteStore {
                     underlying: r.try_get("underlying")?,
                     latest_as_of: from_micros(r.try_get("latest_us")?)?,
                     snapshots: r.try_get("n")?,
+                    superseded: r.try_get("superseded")?,
                 })
             })
             .collect()
     }
 
     async fn history(&self, q: &HistoryQuery) -> Result<Vec<StoredSnapshot>, StoreError> {
-        let rows = sqlx::query(
-            "SELECT id, underlying, as_of_us, stored_at_us, analysis FROM snapshots \
-             WHERE underlying = ?1 \
-               AND (?2 IS NULL OR as_of_us >= ?2) \
-               AND (?3 IS NULL OR as_of_us < ?3) \
-               AND (?4 IS NULL OR as_of_us > ?4 OR (as_of_us = ?4 AND id > ?5)) \
-             ORDER BY as_of_us, id LIMIT ?6",
-        )
+        let rows = sqlx::query(with_revisions!(
+            "",
+            "WHERE s.underlying = ?1 \
+               AND (?2 IS NULL OR s.as_of_us >= ?2) \
+               AND (?3 IS NULL OR s.as_of_us < ?3) \
+               AND (?4 IS NULL OR s.as_of_us > ?4 OR (s.as_of_us = ?4 AND s.id > ?5)) \
+               AND (?6 OR next.id IS NULL) \
+             ORDER BY s.as_of_us, s.id LIMIT ?7"
+        ))
         .bind(&q.underlying)
         .bind(q.from.map(to_micros))
         .bind(q.to.map(to_micros))
         .bind(q.after.map(|p| to_micros(p.as_of)))
         .bind(q.after.map(|p| p.id))
+        .bind(q.revisions == Revisions::All)
         .bind(i64::from(q.limit))
         .fetch_all(&self.pool)
         .await?;

@@ -219,10 +219,12 @@ impl TempDatabase {
 }
 
 /// The [`logstrip::store::Store`] contract, run against any implementation: idempotent
-/// insert, revisions, latest, underlyings, history windows and paging, inputs kept.
+/// insert without skipped ids, revisions of one `as_of` (the newest current, the older
+/// ones kept), latest, underlyings, history windows and paging, inputs kept, and
+/// corrections posted at once numbered apart.
 pub async fn exercise_store(store: &AnyStore) {
     use chrono::{TimeZone, Utc};
-    use logstrip::store::{HistoryPosition, HistoryQuery, NewSnapshot, Store};
+    use logstrip::store::{HistoryPosition, HistoryQuery, NewSnapshot, Revisions, Store};
     let at = |minute: u32| Utc.with_ymd_and_hms(2026, 11, 30, 15, minute, 0).single().expect("time");
     let record = |underlying: &str, minute: u32, digest: &str| {
         NewSnapshot::new(
@@ -237,45 +239,118 @@ pub async fn exercise_store(store: &AnyStore) {
     assert!(store.latest("ORIOLE").await.expect("latest").is_none());
     let first = store.insert(record("ORIOLE", 10, "a")).await.expect("insert");
     assert!(first.created);
+    assert_eq!((first.revision, first.supersedes), (1, None), "the first snapshot of an as_of is revision 1");
     let again = store.insert(record("ORIOLE", 10, "a")).await.expect("insert");
     assert_eq!(
-        (again.id, again.stored_at, again.created),
-        (first.id, first.stored_at, false),
+        (again.id, again.stored_at, again.created, again.revision),
+        (first.id, first.stored_at, false, 1),
         "same content, same row"
     );
     let revision = store.insert(record("ORIOLE", 10, "b")).await.expect("insert");
-    assert!(revision.created && revision.id > first.id, "other content at the same as_of is a new row");
+    assert!(revision.created, "other content at the same as_of is stored");
+    assert_eq!(revision.id, first.id + 1, "the identical repost used up no id");
+    assert_eq!((revision.revision, revision.supersedes), (2, Some(first.id)), "and it is the next revision");
+    let old_again = store.insert(record("ORIOLE", 10, "a")).await.expect("insert");
+    assert_eq!(
+        (old_again.id, old_again.created, old_again.revision),
+        (first.id, false, 1),
+        "an older revision's content finds that revision"
+    );
     let later = store.insert(record("ORIOLE", 20, "c")).await.expect("insert");
     let earlier_posted_last = store.insert(record("ORIOLE", 5, "d")).await.expect("insert");
-    store.insert(record("HERON", 15, "e")).await.expect("insert");
+    let heron = store.insert(record("HERON", 15, "e")).await.expect("insert");
+    assert_eq!(
+        vec![later.id, earlier_posted_last.id, heron.id],
+        vec![revision.id + 1, revision.id + 2, revision.id + 3],
+        "ids do not skip"
+    );
 
     assert_eq!(store.latest_id("ORIOLE").await.expect("latest id"), Some(later.id), "latest is the largest as_of");
     let latest = store.latest("ORIOLE").await.expect("latest").expect("some");
-    assert_eq!((latest.id, latest.as_of), (later.id, at(20)));
+    assert_eq!((latest.id, latest.as_of, latest.revision), (later.id, at(20), 1));
     assert!(latest.input.is_none());
 
     let with_input = store.get(first.id, true).await.expect("get").expect("some");
     assert_eq!(with_input.input, Some(("application/json".into(), "{\"underlying\":\"ORIOLE\",\"minute\":10}".into())));
+    assert_eq!(
+        (with_input.revision, with_input.supersedes, with_input.superseded_by),
+        (1, None, Some(revision.id)),
+        "a superseded revision stays readable and says what replaced it"
+    );
+    let current = store.get(revision.id, false).await.expect("get").expect("some");
+    assert_eq!((current.revision, current.supersedes, current.superseded_by), (2, Some(first.id), None));
     assert!(store.get(first.id + 1000, false).await.expect("get").is_none());
 
     let list = store.underlyings().await.expect("underlyings");
-    let names: Vec<(&str, i64)> = list.iter().map(|u| (u.underlying.as_str(), u.snapshots)).collect();
-    assert_eq!(names, vec![("HERON", 1), ("ORIOLE", 4)]);
+    let counts: Vec<(&str, i64, i64)> =
+        list.iter().map(|u| (u.underlying.as_str(), u.snapshots, u.superseded)).collect();
+    assert_eq!(counts, vec![("HERON", 1, 0), ("ORIOLE", 3, 1)], "a corrected as_of counts once");
     assert_eq!(list[1].latest_as_of, at(20));
 
-    let query = |from, to, after, limit| HistoryQuery { underlying: "ORIOLE".into(), from, to, after, limit };
-    let all = store.history(&query(None, None, None, 100)).await.expect("history");
-    let ids: Vec<i64> = all.iter().map(|s| s.id).collect();
-    assert_eq!(ids, vec![earlier_posted_last.id, first.id, revision.id, later.id], "ascending (as_of, id)");
-    let window = store.history(&query(Some(at(10)), Some(at(20)), None, 100)).await.expect("history");
+    let query = |from, to, after, limit, revisions| HistoryQuery {
+        underlying: "ORIOLE".into(),
+        from,
+        to,
+        after,
+        limit,
+        revisions,
+    };
+    let ids = |rows: &[logstrip::store::StoredSnapshot]| rows.iter().map(|s| s.id).collect::<Vec<_>>();
+    let current = store.history(&query(None, None, None, 100, Revisions::Current)).await.expect("history");
+    assert_eq!(ids(&current), vec![earlier_posted_last.id, revision.id, later.id], "current revisions, by as_of");
+    assert!(current.iter().all(|s| s.superseded_by.is_none()));
+    let all = store.history(&query(None, None, None, 100, Revisions::All)).await.expect("history");
     assert_eq!(
-        window.iter().map(|s| s.id).collect::<Vec<_>>(),
-        vec![first.id, revision.id],
-        "from inclusive, to exclusive"
+        ids(&all),
+        vec![earlier_posted_last.id, first.id, revision.id, later.id],
+        "every revision, ascending (as_of, id)"
     );
-    let page = store.history(&query(None, None, None, 2)).await.expect("history");
-    let after = HistoryPosition { as_of: page[1].as_of, id: page[1].id };
-    let rest = store.history(&query(None, None, Some(after), 2)).await.expect("history");
-    assert_eq!(rest.iter().map(|s| s.id).collect::<Vec<_>>(), vec![revision.id, later.id], "keyset paging");
+    assert_eq!(
+        all.iter().map(|s| (s.revision, s.superseded_by)).collect::<Vec<_>>(),
+        vec![(1, None), (1, Some(revision.id)), (2, None), (1, None)]
+    );
+    for (revisions, expected) in
+        [(Revisions::Current, vec![revision.id]), (Revisions::All, vec![first.id, revision.id])]
+    {
+        let window = store.history(&query(Some(at(10)), Some(at(20)), None, 100, revisions)).await.expect("history");
+        assert_eq!(ids(&window), expected, "from inclusive, to exclusive ({revisions:?})");
+    }
+    for (revisions, expected) in [(Revisions::Current, vec![later.id]), (Revisions::All, vec![revision.id, later.id])] {
+        let page = store.history(&query(None, None, None, 2, revisions)).await.expect("history");
+        let after = HistoryPosition { as_of: page[1].as_of, id: page[1].id };
+        let rest = store.history(&query(None, None, Some(after), 2, revisions)).await.expect("history");
+        assert_eq!(ids(&rest), expected, "keyset paging ({revisions:?})");
+    }
+
+    // A correction of the latest as_of becomes the latest.
+    let corrected = store.insert(record("ORIOLE", 20, "f")).await.expect("insert");
+    assert_eq!((corrected.id, corrected.revision, corrected.supersedes), (heron.id + 1, 2, Some(later.id)));
+    assert_eq!(store.latest_id("ORIOLE").await.expect("latest id"), Some(corrected.id));
+    assert_eq!(store.latest("ORIOLE").await.expect("latest").expect("some").id, corrected.id);
+
+    // Corrections and repeats of one as_of posted at once: each distinct content gets
+    // its own revision, repeats find it, and no id is used up.
+    let mut tasks = tokio::task::JoinSet::new();
+    for k in 0..8u32 {
+        let store = store.clone();
+        let digest = format!("k{}", k % 5);
+        let snapshot = record("KITE", 0, &digest);
+        tasks.spawn(async move { (digest, store.insert(snapshot).await.expect("insert")) });
+    }
+    let mut outcomes = tasks.join_all().await;
+    outcomes.sort_by_key(|(_, i)| (i.revision, !i.created));
+    let created: Vec<_> = outcomes.iter().filter(|(_, i)| i.created).collect();
+    assert_eq!(created.iter().map(|(_, i)| i.revision).collect::<Vec<_>>(), vec![1, 2, 3, 4, 5]);
+    let mut new_ids: Vec<i64> = created.iter().map(|(_, i)| i.id).collect();
+    new_ids.sort_unstable();
+    assert_eq!(new_ids, (corrected.id + 1..=corrected.id + 5).collect::<Vec<_>>(), "ids do not skip");
+    for (digest, repeat) in outcomes.iter().filter(|(_, i)| !i.created) {
+        let (_, original) = created.iter().find(|(d, _)| d == digest).expect("the repeated content was stored");
+        assert_eq!((repeat.id, repeat.revision), (original.id, original.revision), "a repeat finds its revision");
+    }
+    for (_, i) in &created {
+        let expected = (i.revision > 1).then(|| created[usize::try_from(i.revision).expect("small") - 2].1.id);
+        assert_eq!(i.supersedes, expected, "revision {} supersedes the one before", i.revision);
+    }
     store.ping().await.expect("ping");
 }
