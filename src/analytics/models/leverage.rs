@@ -15,7 +15,7 @@ use super::expiry_gaps::distinct_gaps;
 use crate::analytics::numerics::batched::{dot_gather, horner_many, horner_many2};
 use crate::analytics::numerics::digamma::digamma;
 use crate::analytics::numerics::exp::exp;
-use crate::analytics::numerics::gamma::rgamma as rgamma_series_term;
+use crate::analytics::numerics::gamma::rgamma;
 use crate::analytics::numerics::polynomial::terms_needed;
 use crate::analytics::special::mittag_leffler::shared_contour::{NegativeAxisChebyshev, NegativeAxisContour};
 use crate::analytics::special::mittag_leffler::{
@@ -229,7 +229,7 @@ impl PhiSeries {
             let c = match self.coeffs.get(k) {
                 Some(&c) => c,
                 None => {
-                    let c = rgamma_series_term(a * k as f64 + b);
+                    let c = rgamma(a * k as f64 + b);
                     self.coeffs.push(c);
                     c
                 }
