@@ -348,7 +348,23 @@ async fn history_pages_filters_and_csv() {
         let column = header.iter().position(|h| h == "variance_swap").unwrap();
         let vs: f64 = rows[0][column].parse().unwrap();
         assert!(vs > 0.0);
+        // The vol form and the quality flags ride along; numbers carry at most 12
+        // significant digits (no last-bit noise).
+        let at = |name: &str| header.iter().position(|h| h == name).unwrap();
+        let vol: f64 = rows[0][at("variance_swap_vol")].parse().unwrap();
+        assert!((vol - vs.sqrt()).abs() <= 1e-11 * vol, "vol {vol} against sqrt({vs})");
+        assert!(rows.iter().all(|r| ["true", "false"].contains(&&r[at("butterfly_ok")])));
+        assert!(rows.iter().all(|r| r[at("excluded_points")].parse::<u32>().is_ok()));
+        let digits = |cell: &str| {
+            cell.trim_start_matches('-').split('e').next().unwrap().replace('.', "").trim_start_matches('0').len()
+        };
+        assert!(rows.iter().all(|r| digits(&r[column]) <= 12), "at most 12 significant digits");
     }
+    let history: serde_json::Value =
+        server.client.get(server.url("/v1/underlyings/KESTREL50/history")).send().await.unwrap().json().await.unwrap();
+    let point = &history["items"][0]["curve"][0];
+    assert!(point["variance_swap_vol"].as_f64().unwrap() > 0.0, "{point}");
+    assert!(point["quality"]["calendar_ok"].is_boolean(), "{point}");
 }
 
 #[tokio::test]

@@ -156,6 +156,26 @@ pub struct HistoryPoint {
     /// The fitted model's leverage swap.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub model_leverage_swap: Option<f64>,
+    /// `sqrt(variance_swap)`, the variance swap as a vol (decimal).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub variance_swap_vol: Option<f64>,
+    /// `sqrt(gamma_swap)`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub gamma_swap_vol: Option<f64>,
+    /// The expiry's quality flags, as the analysis reported them.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub quality: Option<HistoryQuality>,
+}
+
+/// An expiry's quality flags in the history (the analysis keeps the details).
+#[derive(Debug, Clone, Serialize, Deserialize, ToSchema)]
+pub struct HistoryQuality {
+    /// No butterfly arbitrage over the quoted strikes.
+    pub butterfly_ok: bool,
+    /// Total variance does not fall from the previous expiry.
+    pub calendar_ok: bool,
+    /// Quotes left out of the smile fit as off-market.
+    pub excluded_points: u32,
 }
 
 /// The parts of a stored analysis the history shows.
@@ -307,7 +327,7 @@ fn wants_csv(format: Option<&str>, headers: &HeaderMap) -> Result<bool, ApiError
 }
 
 /// CSV columns, one row per snapshot and expiry.
-pub const CSV_HEADER: [&str; 19] = [
+pub const CSV_HEADER: [&str; 24] = [
     "snapshot_id",
     "underlying",
     "as_of",
@@ -321,6 +341,11 @@ pub const CSV_HEADER: [&str; 19] = [
     "leverage_swap",
     "forward_variance",
     "model_leverage_swap",
+    "variance_swap_vol",
+    "gamma_swap_vol",
+    "butterfly_ok",
+    "calendar_ok",
+    "excluded_points",
     "fit_model",
     "fit_status",
     "hurst",
@@ -335,8 +360,16 @@ fn cell(x: Option<f64>) -> String {
     x.map(number).unwrap_or_default()
 }
 
+/// Significant digits of numbers in CSV: the levels are known to far fewer (their
+/// standard errors are 1e-6 relative at best), and twelve keep the last bits'
+/// rounding (`-0.0014000000000000054`) out of a spreadsheet.
+const CSV_SIGNIFICANT_DIGITS: usize = 12;
+
+/// `x` rounded to [`CSV_SIGNIFICANT_DIGITS`] and written in the shortest form that
+/// reads back as that rounded value.
 fn number(x: f64) -> String {
-    serde_json::Value::from(x).to_string()
+    let rounded = format!("{x:.prec$e}", prec = CSV_SIGNIFICANT_DIGITS - 1).parse::<f64>().unwrap_or(x);
+    serde_json::Value::from(rounded).to_string()
 }
 
 fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
@@ -346,6 +379,7 @@ fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
     for item in &page.items {
         let fit = item.fit.as_ref();
         for p in &item.curve {
+            let quality = p.quality.as_ref();
             writer
                 .write_record([
                     item.id.to_string(),
@@ -361,6 +395,11 @@ fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
                     number(p.leverage_swap),
                     cell(p.forward_variance),
                     cell(p.model_leverage_swap),
+                    cell(p.variance_swap_vol),
+                    cell(p.gamma_swap_vol),
+                    quality.map(|q| q.butterfly_ok.to_string()).unwrap_or_default(),
+                    quality.map(|q| q.calendar_ok.to_string()).unwrap_or_default(),
+                    quality.map(|q| q.excluded_points.to_string()).unwrap_or_default(),
                     fit.map(|f| f.model.clone()).unwrap_or_default(),
                     fit.map(|f| f.status.clone()).unwrap_or_default(),
                     cell(fit.and_then(|f| f.hurst)),
@@ -467,6 +506,18 @@ fn url_query(pairs: &[(&str, Option<&str>)]) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// CSV numbers keep twelve significant digits: the last bits' rounding goes, the
+    /// levels' precision (their standard errors are 1e-6 relative at best) stays.
+    #[test]
+    fn csv_numbers_drop_rounding_noise() {
+        assert_eq!(number(-0.0014000000000000054), "-0.0014");
+        assert_eq!(number(0.1 + 0.2), "0.3");
+        assert_eq!(number(0.036057489598055), "0.0360574895981");
+        assert_eq!(number(-1.7111715529634768e-4), "-0.000171117155296");
+        assert_eq!(number(2.5e-18), "2.5e-18");
+        assert_eq!(number(f64::NAN), "null");
+    }
 
     #[test]
     fn cursors_round_trip_and_reject_garbage() {
