@@ -49,6 +49,8 @@ async fn sigterm_finishes_the_request_in_flight_then_exits_cleanly() {
     assert!(log.contains("listen=127.0.0.1:0") && log.contains("write_token=set"), "configuration printed:\n{log}");
     assert!(!log.contains("process-test-token"), "the token never appears in the log");
     assert!(log.contains("shutting down"), "{log}");
+    // Standard error is a pipe here, not a terminal: plain text, no colour codes.
+    assert!(!log.contains('\u{1b}'), "no terminal colour codes in a log written to a pipe:\n{log}");
 }
 
 #[tokio::test]
