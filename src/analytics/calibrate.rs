@@ -394,7 +394,8 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
     let started = Instant::now();
     let setup = FitSetup::new(spec);
     let nan_params = LeverageParams {
-        hurst: setup.fixed_values[0].unwrap_or(f64::NAN),
+        // The held Hurst exponent: the caller's, or 1/2 of classical Heston.
+        hurst: setup.layout.fixed[ParamName::Hurst.index()].unwrap_or(f64::NAN),
         rho_nu: spec.rho_nu.unwrap_or(f64::NAN),
         mean_reversion: spec.mean_reversion.unwrap_or(f64::NAN),
     };
@@ -483,8 +484,6 @@ pub fn fit_leverage(target: &LeverageTarget, spec: &FitSpec) -> FitOutcome {
 /// parameters are free, their bounds, and `nu` when given.
 struct FitSetup {
     model: ModelKind,
-    /// Value per parameter when held (the Hurst exponent 1/2 of classical Heston too).
-    fixed_values: [Option<f64>; 3],
     /// The parameters the caller fixed (reported as such; not Heston's Hurst exponent).
     fixed: Vec<ParamName>,
     nu: Option<f64>,
@@ -513,7 +512,7 @@ impl FitSetup {
             let (lo, hi) = limits[ParamName::RhoNu.index()];
             limits[ParamName::RhoNu.index()] = (lo.max(-nu), hi.min(nu));
         }
-        Self { model, fixed_values, fixed, nu, layout: Layout { fixed: fixed_values, free, limits } }
+        Self { model, fixed, nu, layout: Layout { fixed: fixed_values, free, limits } }
     }
 
     /// Fixed parameters must lie in the same bounds as free ones: the model is only
