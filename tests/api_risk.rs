@@ -182,6 +182,12 @@ async fn backfill_posts_a_directory_skips_on_rerun_and_lists_failures() {
     assert!(stdout.contains("5 files, 4 done, 0 skipped (already stored), 1 failed"), "{stdout}\n{stderr}");
     assert!(stdout.contains("broken.json: HTTP 400"), "{stdout}");
     assert!(stderr.contains("backfill: 5/5 files"), "plain progress lines off a terminal: {stderr}");
+    // The rate reads to one decimal ("52.5 files/s"), not the four of "52.5377/s".
+    for line in stderr.lines().filter(|line| line.starts_with("backfill: ")) {
+        let rate = line.split(", ").nth(1).and_then(|part| part.strip_suffix(" files/s")).expect("a rate");
+        let decimals = rate.split_once('.').map(|(_, d)| d.len());
+        assert!(rate.parse::<f64>().is_ok() && decimals == Some(1), "rate {rate:?} in {line:?}");
+    }
     assert_eq!(first.status.code(), Some(1), "failures make the exit status 1");
     let listed = std::fs::read_to_string(&failures).unwrap();
     assert_eq!(listed.lines().count(), 1);

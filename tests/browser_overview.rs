@@ -90,6 +90,7 @@ async fn overview_page_renders_charts_without_script_errors() {
     let status = dom.split("id=\"status\"").nth(1).unwrap_or("");
     let status = status.split('<').next().unwrap_or("");
     assert!(status.contains("updated ") && status.trim_end().ends_with(" UTC"), "status in UTC: {status}");
+    page_numbers_are_the_reports(&server, &dom).await;
     for marker in ["Uncaught", "SyntaxError", "TypeError", "ReferenceError", ":ERROR:CONSOLE"] {
         assert!(!log.contains(marker), "script error in the browser log ({marker}):\n{log}");
     }
@@ -99,4 +100,48 @@ async fn overview_page_renders_charts_without_script_errors() {
     let (_, _) = tokio::task::spawn_blocking(move || run_chromium(&browser, &url, &[&shot_arg])).await.expect("join");
     let png = std::fs::read(&shot).expect("screenshot written");
     assert!(png.starts_with(b"\x89PNG") && png.len() > 20_000, "a real screenshot ({} bytes)", png.len());
+}
+
+/// The side panel's figures are the stored analysis's, rounded for reading: each
+/// expiry's variance-swap vol and two standard errors in vol points to 2 decimals, each
+/// fit parameter to 4 decimals (or 3 significant digits in exponent form below 1e-3),
+/// and no number carries float noise (7 or more decimals, `-0.0014000000000000054`).
+async fn page_numbers_are_the_reports(server: &TestServer, dom: &str) {
+    let latest: serde_json::Value = server
+        .client
+        .get(server.url("/v1/underlyings/KESTREL50/latest"))
+        .send()
+        .await
+        .expect("latest")
+        .json()
+        .await
+        .expect("JSON");
+    let side = dom.split("class=\"side\"").nth(1).expect("side panel").split("class=\"history\"").next().unwrap_or("");
+    let curve = latest["curve"].as_array().expect("curve");
+    assert!(curve.len() >= 10, "the demo day has its expiries");
+    for point in curve {
+        let vol = point["variance_swap_vol"].as_f64().expect("variance_swap_vol");
+        let se = point["variance_swap_se"].as_f64().expect("variance_swap_se");
+        // Two se of the vol in vol points: d(sqrt v) = dv / (2 sqrt v), so 2 se / (2 vol).
+        let row = format!("<td>{:.2}</td><td>± {:.2}</td>", 100.0 * vol, 100.0 * se / vol);
+        assert!(side.contains(&row), "the page shows {row} for tau {}:\n{side}", point["tau"]);
+    }
+    let params = latest["fit"]["params"].as_object().expect("fit params");
+    assert!(!params.is_empty());
+    for (name, value) in params {
+        let value = value.as_f64().expect("a number");
+        let shown = if value != 0.0 && (value.abs() < 1e-3 || value.abs() >= 1e4) {
+            format!("{value:.2e}")
+        } else {
+            format!("{value:.4}")
+        };
+        let row = format!("<th>{name}</th><td>{shown}</td>");
+        assert!(side.contains(&row), "the page shows {row}:\n{side}");
+    }
+    let longest_decimals = side
+        .split(|c: char| !(c.is_ascii_digit() || c == '.'))
+        .filter_map(|token| token.split_once('.').map(|(_, decimals)| decimals.len()))
+        .max()
+        .unwrap_or(0);
+    assert!(longest_decimals <= 6, "a number with {longest_decimals} decimals on the page:\n{side}");
 }
