@@ -21,7 +21,9 @@
 //! wing part is half the spread of the level over reasonable rules (the fitted wing,
 //! the wing bending to the SVI base's slope, the straight line of the edge slope and,
 //! where the wings follow SVI, the wing matching the curve's own edge slope and
-//! curvature).
+//! curvature), and at least [`WING_EXTRAPOLATED_REL_SE`] of the level's part from
+//! beyond the edges: the rules can agree by chance (on 15 clean strikes they put a
+//! few 1e-5 on variance swaps whose extrapolated fifth was 1e-3 off).
 //!
 //! The two parts are independent and add in quadrature. Both are first-order
 //! estimates: the noise estimate itself is uncertain on few quotes, the curve's error
@@ -33,6 +35,7 @@ use super::numerics::smoothing_spline;
 use super::replication::levels_beyond;
 use super::smile::svi::SviParams;
 use super::smile::{FittedSmile, SmileCurve};
+use super::tolerances::WING_EXTRAPOLATED_REL_SE;
 
 /// What the smile fit knows about its quotes' noise and its own linear response to
 /// them (kept quotes only, in increasing log-moneyness).
@@ -333,6 +336,16 @@ pub fn wing_spread(levels: &[[f64; 3]]) -> [f64; 3] {
     })
 }
 
+/// The wing part of each level's standard error: half the spread over wing rules
+/// ([`wing_spread`]), but never less than [`WING_EXTRAPOLATED_REL_SE`] of the level's
+/// own part from beyond the edges (`levels[0]`, the fitted curve's), since rules that
+/// happen to agree do not make the extrapolation known.
+pub fn wing_part(levels: &[[f64; 3]]) -> [f64; 3] {
+    let spread = wing_spread(levels);
+    let fitted = levels.first().copied().unwrap_or([0.0; 3]);
+    std::array::from_fn(|l| spread[l].max(WING_EXTRAPOLATED_REL_SE * fitted[l].abs()))
+}
+
 /// Standard errors of a fitted smile's three levels at expiry `tau` (years): `None`
 /// for a smile that records no [`QuoteNoise`] (the monotone cubic) or when a solve
 /// fails. The wing part is computed for a smile with a residual spline (the default),
@@ -354,7 +367,7 @@ pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
             let curves: Vec<SmileCurve> = std::iter::once(curve.clone())
                 .chain(spline.alternative_wings().into_iter().map(SmileCurve::SviSpline))
                 .collect();
-            wing_spread(&levels_beyond(&curves, edges, tau))
+            wing_part(&levels_beyond(&curves, edges, tau))
         }
         _ => [0.0; 3],
     };
@@ -481,6 +494,21 @@ mod tests {
         one[15] = [1.0; 3];
         let single = quote_noise_errors(&noise, &one, &[[0.0; 5]; 3]).expect("errors");
         assert!(single[0] < s && single[0] > s * (1.0 / 30.0f64).sqrt());
+    }
+
+    #[test]
+    fn the_wing_part_is_at_least_a_share_of_the_extrapolated_level() {
+        // Rules that agree to 1e-6 on a wing worth 0.2 of variance: the part is the floor.
+        let agreeing = [[0.2, 0.1, -0.1], [0.200001, 0.1, -0.1]];
+        let part = wing_part(&agreeing);
+        for l in 0..3 {
+            // The same product, computed the same way: equal to the bit.
+            assert_eq!(part[l].to_bits(), (WING_EXTRAPOLATED_REL_SE * agreeing[0][l].abs()).to_bits());
+        }
+        // Rules far apart: the spread.
+        let apart = [[0.2, 0.1, -0.1], [0.3, 0.1, -0.1]];
+        // 1e-15: a few roundings of numbers near 0.1.
+        assert!((wing_part(&apart)[0] - 0.05).abs() < 1e-15);
     }
 
     #[test]

@@ -64,7 +64,8 @@ pub struct CurveDoc {
     pub leverage_swap: f64,
     /// Standard error of `variance_swap` (annualised variance): the quotes' estimated
     /// noise carried through the smile fit, the wings and the integral, and the spread
-    /// of the level over reasonable wing rules, in quadrature. Absent where the smile
+    /// of the level over reasonable wing rules (at least 1% of the level's part from
+    /// beyond the quotes), in quadrature. Absent where the smile
     /// method gives none (`monotone`) or for levels given rather than replicated.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub variance_swap_se: Option<f64>,
