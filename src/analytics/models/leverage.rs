@@ -123,6 +123,13 @@ const CONTOUR_REL_ACCEPT: f64 = 1e-12;
 /// per gap: below it building costs more than it saves.
 const CHEBYSHEV_MIN_GAPS: usize = 64;
 
+/// Factor by which the Chebyshev interpolant's range of `x = -z` is widened on each
+/// side beyond the gaps that need it, so that a fit's next points at the same `a`
+/// (with `mu` within this factor) reuse it instead of sampling the contour again.
+/// Rule of thumb (no source): the last iterations of a fit move `mu` by well under
+/// 1%, and 5% widens the range in `ln x` by 0.1, within one interpolation degree.
+const CHEBYSHEV_RANGE_PAD: f64 = 1.05;
+
 /// Smallest radius the coefficient lists are built for: at smaller radii the derivative
 /// coefficients `(k+1) c_{k+1}` are multiplied by up to `(k+1)/r` relative to the value's
 /// terms, and building for at least 1/4 keeps the extra factor below about 100, far inside
@@ -191,8 +198,12 @@ struct PhiValues {
     /// `d(Phi/c)/da`, filled on request.
     d_alpha: Vec<f64>,
     /// The Chebyshev interpolant of `E_{a,a+2}` beyond the series radius used for
-    /// `e` (reused for the derivatives at the same point).
+    /// `e` (reused for the derivatives at the same point), with the bits of its `a`:
+    /// it is kept for the next point when `a` is the same (a Hurst exponent held on a
+    /// bound or given) and its range still covers the gaps.
     chebyshev: Option<NegativeAxisChebyshev>,
+    /// `a` of `chebyshev` (bit pattern).
+    chebyshev_alpha: u64,
 }
 
 /// The power series of `E_{a,a+2}(z)` for one `a`: coefficients `c_k = 1/Gamma(a k + a + 2)`,
@@ -476,9 +487,8 @@ impl LeverageCurve {
                 }
             }
         };
-        out.chebyshev = None;
         if z_max > radius {
-            let rest = self.values_beyond(alpha, negative, radius, z_max, out);
+            let rest = self.values_beyond(alpha, mu, radius, z_max, out);
             if !rest.is_empty() {
                 self.with_evaluator(alpha, |ml| {
                     for &g in &rest {
@@ -495,19 +505,40 @@ impl LeverageCurve {
     /// `E` on the gaps beyond the series radius from the shared contour (through a
     /// Chebyshev interpolant when at least [`CHEBYSHEV_MIN_GAPS`] of them are on the
     /// negative axis); returns the gaps the contour could not take.
-    fn values_beyond(&self, alpha: f64, negative: bool, radius: f64, z_max: f64, out: &mut PhiValues) -> Vec<usize> {
+    fn values_beyond(&self, alpha: f64, mu: f64, radius: f64, z_max: f64, out: &mut PhiValues) -> Vec<usize> {
+        let negative = mu > 0.0;
         let mut rest = Vec::new();
         self.with_contour(alpha, |contour| {
             let beyond = out.z.iter().filter(|zz| zz.abs() > radius).count();
             let x_lo = out.z.iter().map(|zz| -zz).filter(|x| *x > radius).fold(f64::INFINITY, f64::min);
-            out.chebyshev = contour
-                .filter(|_| negative && beyond >= CHEBYSHEV_MIN_GAPS)
-                .and_then(|c| NegativeAxisChebyshev::new(c, x_lo, z_max, CONTOUR_REL_ACCEPT));
+            let wanted = negative && beyond >= CHEBYSHEV_MIN_GAPS;
+            let reusable = out
+                .chebyshev
+                .as_ref()
+                .is_some_and(|c| out.chebyshev_alpha == alpha.to_bits() && c.contains(x_lo) && c.contains(z_max));
+            if !wanted {
+                out.chebyshev = None;
+            } else if !reusable {
+                // Built a little wider than needed, so that the next points of a fit
+                // (mean reversion moving by less than CHEBYSHEV_RANGE_PAD) can reuse it.
+                out.chebyshev = contour.and_then(|c| {
+                    NegativeAxisChebyshev::new(
+                        c,
+                        x_lo / CHEBYSHEV_RANGE_PAD,
+                        z_max * CHEBYSHEV_RANGE_PAD,
+                        CONTOUR_REL_ACCEPT,
+                    )
+                });
+                out.chebyshev_alpha = alpha.to_bits();
+            }
             if let Some(cheb) = &out.chebyshev {
                 let (gaps, xs): (Vec<usize>, Vec<f64>) =
                     out.z.iter().enumerate().filter(|(_, zz)| zz.abs() > radius).map(|(g, zz)| (g, -zz)).unzip();
+                // ln x = ln mu + alpha ln gap: one logarithm per evaluation, not per gap.
+                let ln_mu = mu.ln();
+                let logs: Vec<f64> = gaps.iter().map(|&g| ln_mu + alpha * self.ln_gaps[g]).collect();
                 let mut values = Vec::with_capacity(xs.len());
-                cheb.values(&xs, &mut values);
+                cheb.values_with_logs(&xs, &logs, &mut values);
                 for (g, v) in gaps.into_iter().zip(values) {
                     out.e[g] = v;
                 }
@@ -573,15 +604,20 @@ impl LeverageCurve {
         let cheb = out.chebyshev.take();
         let mut interpolated = vec![false; m];
         if let Some(cheb) = &cheb {
-            let (gaps, xs): (Vec<usize>, Vec<f64>) = out
-                .z
-                .iter()
-                .enumerate()
-                .filter(|(_, zz)| zz.abs() > radius && cheb.contains(-**zz))
-                .map(|(g, zz)| (g, -zz))
-                .unzip();
+            // ln x = ln mu + alpha ln gap (the interpolant exists only for mu > 0).
+            let ln_mu = mu.ln();
+            let mut gaps = Vec::new();
+            let (mut xs, mut logs) = (Vec::new(), Vec::new());
+            for (g, zz) in out.z.iter().enumerate() {
+                let u = ln_mu + alpha * self.ln_gaps[g];
+                if zz.abs() > radius && cheb.contains_log(u) {
+                    gaps.push(g);
+                    xs.push(-zz);
+                    logs.push(u);
+                }
+            }
             let mut values = Vec::with_capacity(xs.len());
-            cheb.eval_many(&xs, &mut values);
+            cheb.eval_many_with_logs(&xs, &logs, &mut values);
             for (g, [value, d_z, d_a]) in gaps.into_iter().zip(values) {
                 let (t, p, zz) = (self.gaps[g], out.t_a[g], out.z[g]);
                 out.d_mu[g] = -t * p * p * d_z;
@@ -833,6 +869,35 @@ mod tests {
     }
 
     /// A repeated request reuses the cached values and still adds derivatives.
+    /// A fit's points at one `a` (a Hurst exponent held on its bound) reuse the
+    /// Chebyshev interpolant of the previous point: values and `mu`-derivatives agree
+    /// with a fresh curve's to 1e-13 relative, `a`-derivatives to 1e-11 (the
+    /// interpolants' series are cut at 1e-15, 1e-14 and 1e-12 of their largest
+    /// coefficient, `CHEBYSHEV_TAIL_TOL`; the margin covers two ranges' errors).
+    #[test]
+    fn an_interpolant_kept_for_the_next_point_gives_the_fresh_values() {
+        let taus: Vec<f64> = (0..35).map(|i| 0.02 * 1.16f64.powi(i)).collect();
+        let xi: Vec<f64> = taus.iter().map(|t| 0.04 + 0.01 * t).collect();
+        let curve = LeverageCurve::new(&taus, &xi).expect("valid curve");
+        let mut kept = PhiValues::default();
+        let mut reused = false;
+        for mu in [3.0, 3.05, 3.06, 3.0601] {
+            curve.phi_over_c(0.97, mu, true, Accuracy::Full, &mut kept).expect("evaluates");
+            let table = kept.chebyshev.as_ref().map(|c| c.degree());
+            let mut fresh = PhiValues::default();
+            curve.phi_over_c(0.97, mu, true, Accuracy::Full, &mut fresh).expect("evaluates");
+            assert!(table.is_some(), "mu {mu}: the gaps beyond the series go through an interpolant");
+            reused |= kept.chebyshev.as_ref().map(|c| c.range()) != fresh.chebyshev.as_ref().map(|c| c.range());
+            for g in 0..curve.gaps.len() {
+                let what = format!("mu {mu} gap {}", curve.gaps[g]);
+                close(&what, kept.value[g], fresh.value[g], fresh.value[g].abs(), 1e-13);
+                close(&what, kept.d_mu[g], fresh.d_mu[g], fresh.d_mu[g].abs(), 1e-13);
+                close(&what, kept.d_alpha[g], fresh.d_alpha[g], fresh.d_alpha[g].abs(), 1e-11);
+            }
+        }
+        assert!(reused, "a later point kept the earlier interpolant");
+    }
+
     #[test]
     fn cached_values_are_reused_consistently() {
         let curve = curve();

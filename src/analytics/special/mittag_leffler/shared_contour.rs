@@ -265,8 +265,21 @@ impl NegativeAxisChebyshev {
 
     /// True when `x` lies in the interpolant's range (where it was built).
     pub fn contains(&self, x: f64) -> bool {
-        let u = x.ln();
-        u >= self.u_lo && u <= self.u_hi
+        self.contains_log(x.ln())
+    }
+
+    /// True when `e^u` lies in the interpolant's range, give or take
+    /// [`LOG_RANGE_SLACK`]: a caller's `u` computed as a sum of logarithms can differ
+    /// by a rounding from the `ln` the range was built with, and one rounding beyond
+    /// the ends moves the interpolant by far less than its own error.
+    pub fn contains_log(&self, u: f64) -> bool {
+        let slack = LOG_RANGE_SLACK * (1.0 + self.u_lo.abs().max(self.u_hi.abs()));
+        u >= self.u_lo - slack && u <= self.u_hi + slack
+    }
+
+    /// The range of `ln x` the interpolant was built on.
+    pub fn range(&self) -> (f64, f64) {
+        (self.u_lo, self.u_hi)
     }
 
     /// Degree of the interpolant (of its longest series).
@@ -276,7 +289,12 @@ impl NegativeAxisChebyshev {
 
     /// `t` of `x`.
     fn t_of(&self, x: f64) -> f64 {
-        (2.0 * x.ln() - self.u_lo - self.u_hi) / (self.u_hi - self.u_lo)
+        self.t_of_log(x.ln())
+    }
+
+    /// `t` of `x = e^u`.
+    fn t_of_log(&self, u: f64) -> f64 {
+        (2.0 * u - self.u_lo - self.u_hi) / (self.u_hi - self.u_lo)
     }
 
     /// `(E(-x), dE/dz, dE/da)` at `x` in the interpolant's range (Clenshaw's recurrence;
@@ -292,11 +310,19 @@ impl NegativeAxisChebyshev {
     /// `E(-x)` alone at each of `xs` (all in range) into `out`, [`CHEBYSHEV_LANES`] at a
     /// time; the same bits as [`eval`](Self::eval)'s first entry.
     pub fn values(&self, xs: &[f64], out: &mut Vec<f64>) {
+        let logs: Vec<f64> = xs.iter().map(|x| x.ln()).collect();
+        self.values_with_logs(xs, &logs, out);
+    }
+
+    /// [`values`](Self::values) with each argument's natural logarithm given
+    /// (`logs[i] = ln xs[i]`), for callers that have it without a `ln` call.
+    pub fn values_with_logs(&self, xs: &[f64], logs: &[f64], out: &mut Vec<f64>) {
         out.clear();
-        for chunk in xs.chunks(CHEBYSHEV_LANES) {
-            let mut x = [1.0; CHEBYSHEV_LANES];
+        for (chunk, chunk_logs) in xs.chunks(CHEBYSHEV_LANES).zip(logs.chunks(CHEBYSHEV_LANES)) {
+            let (mut x, mut u) = ([1.0; CHEBYSHEV_LANES], [0.0; CHEBYSHEV_LANES]);
             x[..chunk.len()].copy_from_slice(chunk);
-            let g = clenshaw(&self.series[0], x.map(|x| self.t_of(x)));
+            u[..chunk.len()].copy_from_slice(chunk_logs);
+            let g = clenshaw(&self.series[0], u.map(|u| self.t_of_log(u)));
             out.extend((0..chunk.len()).map(|i| g[i] * (1.0 / x[i])));
         }
     }
@@ -304,11 +330,19 @@ impl NegativeAxisChebyshev {
     /// [`eval`](Self::eval) at each of `xs` (all in range) into `out`,
     /// [`CHEBYSHEV_LANES`] at a time; the same bits as `eval`.
     pub fn eval_many(&self, xs: &[f64], out: &mut Vec<[f64; 3]>) {
+        let logs: Vec<f64> = xs.iter().map(|x| x.ln()).collect();
+        self.eval_many_with_logs(xs, &logs, out);
+    }
+
+    /// [`eval_many`](Self::eval_many) with each argument's natural logarithm given
+    /// (`logs[i] = ln xs[i]`).
+    pub fn eval_many_with_logs(&self, xs: &[f64], logs: &[f64], out: &mut Vec<[f64; 3]>) {
         out.clear();
-        for chunk in xs.chunks(CHEBYSHEV_LANES) {
-            let mut x = [1.0; CHEBYSHEV_LANES];
+        for (chunk, chunk_logs) in xs.chunks(CHEBYSHEV_LANES).zip(logs.chunks(CHEBYSHEV_LANES)) {
+            let (mut x, mut u) = ([1.0; CHEBYSHEV_LANES], [0.0; CHEBYSHEV_LANES]);
             x[..chunk.len()].copy_from_slice(chunk);
-            let t = x.map(|x| self.t_of(x));
+            u[..chunk.len()].copy_from_slice(chunk_logs);
+            let t = u.map(|u| self.t_of_log(u));
             let g: [[f64; CHEBYSHEV_LANES]; 3] = std::array::from_fn(|l| clenshaw(&self.series[l], t));
             out.extend((0..chunk.len()).map(|i| {
                 let inv = 1.0 / x[i];
@@ -331,6 +365,9 @@ fn clenshaw<const N: usize>(c: &[f64], t: [f64; N]) -> [f64; N] {
     }
     std::array::from_fn(|i| c[0] + t[i] * b1[i] - b2[i])
 }
+
+/// Relative slack of [`NegativeAxisChebyshev::contains_log`]: a few roundings of `u`.
+pub const LOG_RANGE_SLACK: f64 = 8.0 * f64::EPSILON;
 
 /// Arguments evaluated together by [`NegativeAxisChebyshev::eval_many`] and
 /// [`NegativeAxisChebyshev::values`]: Clenshaw's recurrence is a chain of dependent
