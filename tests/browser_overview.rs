@@ -103,7 +103,8 @@ async fn overview_page_renders_charts_without_script_errors() {
 }
 
 /// The side panel's figures are the stored analysis's, rounded for reading: each
-/// expiry's variance-swap vol and two standard errors in vol points to 2 decimals, each
+/// expiry's variance-swap vol, two standard errors, at-the-money vol and 25-delta skew
+/// in vol points to 2 decimals, each
 /// fit parameter to 4 decimals (or 3 significant digits in exponent form below 1e-3),
 /// and no number carries float noise (7 or more decimals, `-0.0014000000000000054`).
 async fn page_numbers_are_the_reports(server: &TestServer, dom: &str) {
@@ -122,8 +123,16 @@ async fn page_numbers_are_the_reports(server: &TestServer, dom: &str) {
     for point in curve {
         let vol = point["variance_swap_vol"].as_f64().expect("variance_swap_vol");
         let se = point["variance_swap_se"].as_f64().expect("variance_swap_se");
+        let atm = point["atm_vol"].as_f64().expect("atm_vol");
+        let skew = point["skew_25_delta"].as_f64().expect("skew_25_delta");
         // Two se of the vol in vol points: d(sqrt v) = dv / (2 sqrt v), so 2 se / (2 vol).
-        let row = format!("<td>{:.2}</td><td>± {:.2}</td>", 100.0 * vol, 100.0 * se / vol);
+        let row = format!(
+            "<td>{:.2}</td><td>± {:.2}</td><td>{:.2}</td><td>{:.2}</td>",
+            100.0 * vol,
+            100.0 * se / vol,
+            100.0 * atm,
+            100.0 * skew
+        );
         assert!(side.contains(&row), "the page shows {row} for tau {}:\n{side}", point["tau"]);
     }
     let params = latest["fit"]["params"].as_object().expect("fit params");

@@ -4,6 +4,7 @@
 use super::calibrate::{fit_leverage, FitOutcome, FitSpec, LeverageTarget};
 use super::replication::{replicate, Replication};
 use super::slice::Slice;
+use super::smile::delta_levels::{delta_levels, DeltaLevels};
 use super::smile::{fit_smiles, ButterflyViolation, FittedSmile, SmileError, SmileMethod, SmileQuote};
 use super::term::TermStructure;
 use super::tolerances::CALENDAR_TOTAL_VARIANCE_TOL;
@@ -50,6 +51,9 @@ pub struct SliceAnalysis {
     pub butterfly: Option<ButterflyViolation>,
     /// False when this expiry's total variance falls below the previous one's.
     pub calendar_ok: bool,
+    /// At-the-money vol and 25-delta skew of the fitted smile (`None` when they cannot
+    /// be read off it).
+    pub delta_levels: Option<DeltaLevels>,
     /// Usable quotes.
     pub points: usize,
     /// Quotes left out of the smile or kept but suspect, by strike.
@@ -166,6 +170,7 @@ fn analyze_expiry(index: usize, slice: &Slice, smile: FittedSmile) -> SliceAnaly
         forward: slice.forward(),
         discount: slice.discount(),
         points: slice.quotes().len(),
+        delta_levels: delta_levels(&smile.curve, tau),
         flagged_quotes,
         smile,
         replication,

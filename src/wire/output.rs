@@ -62,6 +62,14 @@ pub struct CurveDoc {
     pub gamma_swap_vol: Option<f64>,
     /// `gamma_swap - variance_swap`.
     pub leverage_swap: f64,
+    /// Implied vol at the forward (decimal), from the fitted smile.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub atm_vol: Option<f64>,
+    /// 25-delta put vol minus 25-delta call vol (decimal; positive for the usual
+    /// equity smile), from the fitted smile. Deltas are forward Black deltas,
+    /// undiscounted and without premium adjustment: call `N(d1)`, put `N(d1) - 1`.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub skew_25_delta: Option<f64>,
     /// Standard error of `variance_swap` (annualised variance): the quotes' estimated
     /// noise carried through the smile fit, the wings and the integral, and the spread
     /// of the level over reasonable wing rules (at least 1% of the level's part from
@@ -365,6 +373,8 @@ fn curve_point(input: &ValidSnapshot, s: &SliceAnalysis) -> CurveDoc {
         gamma_swap: l.gamma,
         gamma_swap_vol: vol_of(l.gamma),
         leverage_swap: l.leverage,
+        atm_vol: s.delta_levels.map(|d| d.atm_vol),
+        skew_25_delta: s.delta_levels.map(|d| d.skew_25_delta),
         variance_swap_se: s.level_errors.map(|e| e.total()[0]),
         gamma_swap_se: s.level_errors.map(|e| e.total()[1]),
         leverage_swap_se: s.level_errors.map(|e| e.total()[2]),
@@ -442,6 +452,8 @@ pub fn swaps_doc(input: &ValidSwaps, fit: Option<&FitOutcome>) -> AnalysisDoc {
             gamma_swap: input.gamma_swap[i],
             gamma_swap_vol: vol_of(input.gamma_swap[i]),
             leverage_swap: t.leverage_swap[i],
+            atm_vol: None,
+            skew_25_delta: None,
             variance_swap_se: None,
             gamma_swap_se: None,
             leverage_swap_se: None,

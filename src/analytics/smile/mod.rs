@@ -10,6 +10,7 @@
 //!   Anal. 17(2) (1980), "Monotone piecewise cubic interpolation") with linear wings, for dense clean quotes that
 //!   should be reproduced exactly.
 
+pub mod delta_levels;
 pub mod monotone;
 pub mod svi;
 mod svi_quasi_explicit;
