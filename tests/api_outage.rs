@@ -1,7 +1,8 @@
 //! Store outage: with PostgreSQL reached through a TCP relay that the test cuts and
 //! restores, writes get 503 with `Retry-After`, `/readyz` fails, computation-only
 //! endpoints keep working, and the service recovers by itself. Needs
-//! `LOGSTRIP_TEST_POSTGRES_URL` (skipped, saying so, without it).
+//! `LOGSTRIP_TEST_POSTGRES_URL` (skipped, saying so, without it). And readiness: a
+//! store whose write lock another session holds is not ready (SQLite and PostgreSQL).
 
 mod common;
 
@@ -88,6 +89,44 @@ async fn store_outage_gives_503_and_the_service_recovers() {
     assert!(recovered, "ready again within 15 s of the store's return");
     let stored = post_json(&server, "/v1/snapshots", later.to_string()).await;
     assert_eq!(stored.status(), StatusCode::CREATED);
+    drop(server);
+    db.drop_now().await;
+}
+
+/// `/readyz` checks what a write needs: with the SQLite write lock held by another
+/// session, writes would wait, so the service is not ready; once it is released, ready.
+#[tokio::test]
+async fn readyz_fails_while_another_session_holds_the_sqlite_write_lock() {
+    use sqlx::Connection;
+    let server = start_sqlite(open_settings()).await;
+    let path = server._dir.as_ref().expect("temp dir").path().join("history.db");
+    assert_eq!(server.client.get(server.url("/readyz")).send().await.expect("readyz").status(), StatusCode::OK);
+    let mut other = sqlx::SqliteConnection::connect(&format!("sqlite://{}", path.display())).await.expect("connect");
+    sqlx::raw_sql("BEGIN IMMEDIATE").execute(&mut other).await.expect("take the write lock");
+    let locked = server.client.get(server.url("/readyz")).send().await.expect("readyz");
+    assert_eq!(locked.status(), StatusCode::SERVICE_UNAVAILABLE);
+    assert_eq!(locked.headers()["retry-after"], "5");
+    sqlx::raw_sql("ROLLBACK").execute(&mut other).await.expect("release");
+    assert_eq!(server.client.get(server.url("/readyz")).send().await.expect("readyz").status(), StatusCode::OK);
+}
+
+/// The same on PostgreSQL: `LOCK TABLE snapshots` in another session makes inserts
+/// wait, and `/readyz` says so; after the commit it is ready again.
+#[tokio::test]
+async fn readyz_fails_while_the_postgres_table_is_locked() {
+    use sqlx::Connection;
+    let Some(admin) = postgres_url("readyz_fails_while_the_postgres_table_is_locked") else { return };
+    let db = TempDatabase::create(&admin).await;
+    let store = AnyStore::open(&db.url).await.expect("open");
+    let server = start_with_store(store, open_settings(), None).await;
+    assert_eq!(server.client.get(server.url("/readyz")).send().await.expect("readyz").status(), StatusCode::OK);
+    let mut other = sqlx::PgConnection::connect(&db.url).await.expect("connect");
+    sqlx::raw_sql("BEGIN; LOCK TABLE snapshots IN ACCESS EXCLUSIVE MODE").execute(&mut other).await.expect("lock");
+    let locked = server.client.get(server.url("/readyz")).send().await.expect("readyz");
+    assert_eq!(locked.status(), StatusCode::SERVICE_UNAVAILABLE);
+    sqlx::raw_sql("COMMIT").execute(&mut other).await.expect("release");
+    assert_eq!(server.client.get(server.url("/readyz")).send().await.expect("readyz").status(), StatusCode::OK);
+    let _ = other.close().await;
     drop(server);
     db.drop_now().await;
 }

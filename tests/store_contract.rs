@@ -151,3 +151,35 @@ async fn postgres_migration_numbers_earlier_corrections_as_revisions() {
     drop(store);
     db.drop_now().await;
 }
+
+/// A value PostgreSQL's text type cannot hold (NUL) is the request's fault: the store
+/// says `Refused` (the service answers 422 and counts no store error), not `Failed`.
+/// SQLite keeps it. The service refuses such underlyings before the store; this is the
+/// net below, for any other text.
+#[tokio::test]
+async fn a_nul_in_text_is_refused_by_postgres_not_a_failure() {
+    use logstrip::store::{NewSnapshot, Store, StoreError};
+    let record = || {
+        NewSnapshot::new(
+            "NUL\u{0}IN".to_string(),
+            chrono::DateTime::from_timestamp(1_796_052_600, 0).expect("time"),
+            "digest".into(),
+            "text/csv",
+            "a\u{0}b".into(),
+            "{}".into(),
+        )
+    };
+    let dir = tempfile::tempdir().expect("temp dir");
+    let sqlite = AnyStore::open(&format!("sqlite://{}", dir.path().join("h.db").display())).await.expect("sqlite");
+    assert!(sqlite.insert(record()).await.expect("SQLite keeps it").created);
+    let Some(admin) = postgres_url("a_nul_in_text_is_refused_by_postgres_not_a_failure") else { return };
+    let db = TempDatabase::create(&admin).await;
+    let store = AnyStore::open(&db.url).await.expect("open");
+    let inserted = store.insert(record()).await;
+    assert!(matches!(inserted, Err(StoreError::Refused(_))), "expected Refused, got {inserted:?}");
+    let read = store.latest("NUL\u{0}IN").await;
+    assert!(matches!(read, Err(StoreError::Refused(_))), "a read with a NUL is refused too, got {read:?}");
+    store.ping().await.expect("the store is fine afterwards");
+    drop(store);
+    db.drop_now().await;
+}

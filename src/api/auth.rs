@@ -26,11 +26,16 @@ impl Token {
     /// A token from its text (surrounding whitespace removed).
     ///
     /// # Errors
-    /// A message when the token is empty.
+    /// A message when the token is empty, or holds whitespace or a control character
+    /// (a second line, say): no `Authorization` header could carry it, so it would
+    /// never match.
     pub fn new(text: &str) -> Result<Self, String> {
         let text = text.trim();
         if text.is_empty() {
             return Err("the token is empty".into());
+        }
+        if text.chars().any(|c| c.is_whitespace() || c.is_control()) {
+            return Err("the token must be one line without spaces or control characters".into());
         }
         Ok(Self { digest: Sha256::digest(text.as_bytes()).into() })
     }
@@ -101,5 +106,7 @@ mod tests {
         assert!(!t.matches("s3cret "));
         assert_eq!(format!("{t:?}"), "Token(***)");
         assert!(Token::new("  ").is_err());
+        assert!(Token::new("first\nsecond\n").is_err(), "a two-line token could never match");
+        assert!(Token::new("a b").is_err());
     }
 }

@@ -6,8 +6,10 @@ use super::state::AppState;
 use crate::wire::csv_input::CsvHeader;
 use crate::wire::{FieldPath, InputErrors, SnapshotFormat};
 use axum::body::Bytes;
-use axum::extract::{FromRequest, Request};
+use axum::extract::{FromRequest, Request, State};
 use axum::http::{header, StatusCode};
+use axum::middleware::Next;
+use axum::response::{IntoResponse, Response};
 
 /// The body of a `POST` as JSON text, not yet parsed.
 #[derive(Debug)]
@@ -77,6 +79,22 @@ async fn read_text(request: Request, state: &AppState) -> Result<String, ApiErro
     String::from_utf8(bytes.to_vec()).map_err(|e| {
         ApiError::Input(InputErrors::malformed(FieldPath::root(), format!("body must be UTF-8 text: {e}")))
     })
+}
+
+/// Middleware: a request whose `Content-Length` exceeds `limit` gets 413 at once,
+/// before anything reads its body (so `Expect: 100-continue` gets no `100`).
+pub async fn refuse_declared_oversize(State(limit): State<usize>, request: Request, next: Next) -> Response {
+    let declared = request
+        .headers()
+        .get(header::CONTENT_LENGTH)
+        .and_then(|v| v.to_str().ok())
+        .and_then(|v| v.trim().parse::<u64>().ok());
+    match declared {
+        Some(length) if length > u64::try_from(limit).unwrap_or(u64::MAX) => {
+            ApiError::PayloadTooLarge { limit }.into_response()
+        }
+        _ => next.run(request).await,
+    }
 }
 
 impl FromRequest<AppState> for JsonText {

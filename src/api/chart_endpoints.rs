@@ -63,6 +63,7 @@ fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
          body = String, content_type = "image/svg+xml", headers(("ETag" = String, description = "Entity tag of the snapshot drawn"))),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "An underlying no snapshot can have (a control character, over 200 characters)", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
          headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
     ),
@@ -72,6 +73,7 @@ pub async fn get_latest_chart(
     State(state): State<AppState>,
     Path(underlying): Path<String>,
 ) -> Result<Response, ApiError> {
+    super::query::checked_underlying(&underlying)?;
     let record = state
         .store()
         .latest(&underlying)
@@ -132,6 +134,7 @@ fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<
         (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No fitted snapshot of this underlying in the range", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "An underlying no snapshot can have (a control character, over 200 characters)", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
          headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
     ),
@@ -142,6 +145,7 @@ pub async fn get_history_chart(
     Path(underlying): Path<String>,
     query: Result<Query<ParamChartQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
+    super::query::checked_underlying(&underlying)?;
     let query = query_params(query)?;
     let param = query.param.as_deref().unwrap_or("hurst");
     let pick: fn(&HistoryFit) -> Option<f64> = match param {

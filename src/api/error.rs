@@ -4,7 +4,7 @@
 
 use crate::store::StoreError;
 use crate::wire::path::InputErrorKind;
-use crate::wire::InputErrors;
+use crate::wire::{FieldPath, InputErrors};
 use axum::http::{header, HeaderValue, StatusCode};
 use axum::response::{IntoResponse, Response};
 use serde::Serialize;
@@ -25,6 +25,15 @@ pub enum ApiError {
     /// A query parameter is invalid.
     #[error("query parameter {name}: {message}")]
     Parameter {
+        /// Parameter name.
+        name: &'static str,
+        /// What is wrong.
+        message: String,
+    },
+    /// A path parameter holds a value no resource can have (an underlying with a
+    /// control character, say).
+    #[error("path parameter {name}: {message}")]
+    PathValue {
         /// Parameter name.
         name: &'static str,
         /// What is wrong.
@@ -80,6 +89,10 @@ impl From<StoreError> for ApiError {
     fn from(e: StoreError) -> Self {
         match e {
             StoreError::Unavailable(m) => Self::StoreUnavailable(m),
+            StoreError::Refused(m) => Self::Input(InputErrors::one(
+                FieldPath::root(),
+                format!("the history store cannot keep this value: {m}"),
+            )),
             other => Self::Internal(other.to_string()),
         }
     }
@@ -93,7 +106,7 @@ pub struct FieldProblem {
     #[serde(skip_serializing_if = "Option::is_none")]
     #[schema(example = "/slices/3/points/7/vol")]
     pub pointer: Option<String>,
-    /// Name of the query parameter.
+    /// Name of the query or path parameter.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub parameter: Option<String>,
     /// Line of a CSV body (the header is line 1).
@@ -138,6 +151,7 @@ impl ApiError {
             Self::Input(e) if e.kind == InputErrorKind::Malformed => StatusCode::BAD_REQUEST,
             Self::Input(_) => StatusCode::UNPROCESSABLE_ENTITY,
             Self::Parameter { .. } => StatusCode::BAD_REQUEST,
+            Self::PathValue { .. } => StatusCode::UNPROCESSABLE_ENTITY,
             Self::UnsupportedMediaType { .. } => StatusCode::UNSUPPORTED_MEDIA_TYPE,
             Self::PayloadTooLarge { .. } => StatusCode::PAYLOAD_TOO_LARGE,
             Self::NotFound(_) => StatusCode::NOT_FOUND,
@@ -157,7 +171,7 @@ impl ApiError {
             Self::Input(e) if e.kind == InputErrorKind::Malformed => {
                 ("urn:logstrip:problem:malformed-body", "Malformed request body")
             }
-            Self::Input(_) => ("urn:logstrip:problem:invalid-values", "Invalid values"),
+            Self::Input(_) | Self::PathValue { .. } => ("urn:logstrip:problem:invalid-values", "Invalid values"),
             Self::Parameter { .. } => ("urn:logstrip:problem:invalid-parameter", "Invalid query parameter"),
             Self::StoreUnavailable(_) => ("urn:logstrip:problem:store-unavailable", "Store unavailable"),
             _ => ("about:blank", status.canonical_reason().unwrap_or("Error")),
@@ -183,7 +197,7 @@ impl ApiError {
                     })
                     .collect(),
             ),
-            Self::Parameter { name, message } => (
+            Self::Parameter { name, message } | Self::PathValue { name, message } => (
                 self.to_string(),
                 vec![FieldProblem {
                     pointer: None,

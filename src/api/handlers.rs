@@ -368,6 +368,7 @@ fn parse_wait(wait: Option<&str>) -> Result<Duration, ApiError> {
         (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "An underlying no snapshot can have (a control character, over 200 characters)", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
          headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
     ),
@@ -379,6 +380,7 @@ pub async fn get_latest(
     headers: HeaderMap,
     query: Result<Query<LatestQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
+    super::query::checked_underlying(&underlying)?;
     let wait = parse_wait(query_params(query)?.wait.as_deref())?;
     let client_tag = headers.get(header::IF_NONE_MATCH).and_then(|v| v.to_str().ok()).map(str::to_string);
     let deadline = Instant::now() + wait;
@@ -428,7 +430,8 @@ pub async fn healthz() -> Json<StatusDoc> {
     Json(StatusDoc { status: "ok".into() })
 }
 
-/// Readiness: the store answers.
+/// Readiness: the store could take a write now (it answers, is writable, and no lock
+/// would hold an insert up), checked within 2 s.
 #[utoipa::path(get, path = "/readyz", tag = "operations",
     responses(
         (status = 200, description = "Ready", body = StatusDoc),
@@ -466,9 +469,11 @@ pub async fn not_found(request: Request) -> ApiError {
     ApiError::NotFound(format!("no route for {}", request.uri().path()))
 }
 
-/// Known paths, wrong method.
+/// Known paths, wrong method. A made-up method is not repeated back.
 pub async fn method_not_allowed(request: Request) -> ApiError {
-    ApiError::MethodNotAllowed(format!("{} is not allowed on {}", request.method(), request.uri().path()))
+    let method = super::metrics::method_label(request.method());
+    let method = if method == "other" { "this method" } else { method };
+    ApiError::MethodNotAllowed(format!("{method} is not allowed on {}", request.uri().path()))
 }
 
 /// Middleware: ends a request that takes longer than the configured limit.

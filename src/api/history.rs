@@ -429,6 +429,7 @@ revision with `revisions=all`); `Link` with `rel=\"next\"` when more follow",
         (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
+        (status = 422, description = "An underlying no snapshot can have (a control character, over 200 characters)", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
          headers(("Retry-After" = u32, description = "Seconds to wait before retrying"))),
     ),
@@ -440,6 +441,7 @@ pub async fn get_history(
     headers: HeaderMap,
     params: Result<Query<HistoryParams>, QueryRejection>,
 ) -> Result<Response, ApiError> {
+    super::query::checked_underlying(&underlying)?;
     let params = query_params(params)?;
     let csv = wants_csv(params.format.as_deref(), &headers)?;
     let query = HistoryQuery {

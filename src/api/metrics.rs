@@ -16,12 +16,22 @@ use std::time::Instant;
 /// Labels of a request.
 #[derive(Clone, Debug, Hash, PartialEq, Eq, EncodeLabelSet)]
 pub struct RequestLabels {
-    /// Route template, e.g. `/v1/snapshots/{id}` (`unmatched` for unknown paths).
+    /// Route template, e.g. `/v1/snapshots/{id}` (`unmatched` for unknown paths): one
+    /// of the router's templates, never the path a client sent.
     pub route: String,
-    /// HTTP method.
-    pub method: String,
+    /// HTTP method: one of [`KNOWN_METHODS`], else `other`, so made-up methods cannot
+    /// add series.
+    pub method: &'static str,
     /// Status code.
     pub status: u16,
+}
+
+/// The methods counted by name; every other method is counted as `other`.
+pub const KNOWN_METHODS: [&str; 9] = ["GET", "HEAD", "POST", "PUT", "DELETE", "PATCH", "OPTIONS", "TRACE", "CONNECT"];
+
+/// The label of a request's method: its name when standard, else `other`.
+pub fn method_label(method: &axum::http::Method) -> &'static str {
+    KNOWN_METHODS.iter().copied().find(|known| *known == method.as_str()).unwrap_or("other")
 }
 
 /// Labels of an analysis.
@@ -29,6 +39,14 @@ pub struct RequestLabels {
 pub struct OutcomeLabels {
     /// `ok` or `invalid_input`.
     pub outcome: String,
+}
+
+/// Labels of a connection the server closed.
+#[derive(Clone, Debug, Hash, PartialEq, Eq, EncodeLabelSet)]
+pub struct ConnectionLabels {
+    /// `header_timeout`, `idle_timeout`, `evicted` (its slot given to a new
+    /// connection) or `refused` (every slot busy with a request).
+    pub reason: &'static str,
 }
 
 /// Labels of a store error.
@@ -57,6 +75,7 @@ pub struct Metrics {
     analyses: Family<OutcomeLabels, Counter>,
     fit_seconds: Histogram,
     store_errors: Family<StoreLabels, Counter>,
+    connections_closed: Family<ConnectionLabels, Counter>,
 }
 
 impl Default for Metrics {
@@ -74,12 +93,22 @@ impl Metrics {
         let analyses = Family::<OutcomeLabels, Counter>::default();
         let fit_seconds = fit_histogram();
         let store_errors = Family::<StoreLabels, Counter>::default();
+        let connections_closed = Family::<ConnectionLabels, Counter>::default();
         registry.register("http_requests", "HTTP requests by route, method and status", requests.clone());
         registry.register("http_request_duration_seconds", "HTTP request latency, seconds", latency.clone());
         registry.register("analyses", "Snapshot analyses by outcome", analyses.clone());
         registry.register("fit_duration_seconds", "Model fit duration, seconds", fit_seconds.clone());
         registry.register("store_errors", "Store errors by operation", store_errors.clone());
-        Self { registry: Arc::new(registry), requests, latency, analyses, fit_seconds, store_errors }
+        registry.register("connections_closed", "Connections the server closed, by reason", connections_closed.clone());
+        Self {
+            registry: Arc::new(registry),
+            requests,
+            latency,
+            analyses,
+            fit_seconds,
+            store_errors,
+            connections_closed,
+        }
     }
 
     /// Counts an analysis (`ok` or `invalid_input`).
@@ -97,6 +126,11 @@ impl Metrics {
         self.store_errors.get_or_create(&StoreLabels { operation: operation.to_string() }).inc();
     }
 
+    /// Counts a connection the server closed (`reason` as in [`ConnectionLabels`]).
+    pub fn connection_closed(&self, reason: &'static str) {
+        self.connections_closed.get_or_create(&ConnectionLabels { reason }).inc();
+    }
+
     /// The text exposition.
     pub fn render(&self) -> String {
         let mut text = String::new();
@@ -107,7 +141,10 @@ impl Metrics {
     }
 }
 
-/// Middleware: counts and times every request by route template and status.
+/// Middleware: counts and times every request by route template, method and status.
+/// Every label comes from a fixed set (the router's templates or `unmatched`, the
+/// standard methods or `other`, the status codes the service sends), so no request can
+/// add series of its own.
 pub async fn record(State(metrics): State<Metrics>, request: Request, next: Next) -> Response {
     let started = Instant::now();
     let route = request
@@ -115,7 +152,7 @@ pub async fn record(State(metrics): State<Metrics>, request: Request, next: Next
         .get::<MatchedPath>()
         .map(|p| p.as_str().to_string())
         .unwrap_or_else(|| "unmatched".to_string());
-    let method = request.method().to_string();
+    let method = method_label(request.method());
     let response = next.run(request).await;
     let labels = RequestLabels { route, method, status: response.status().as_u16() };
     metrics.requests.get_or_create(&labels).inc();

@@ -9,6 +9,7 @@
 pub mod auth;
 pub mod body;
 pub mod chart_endpoints;
+pub mod connections;
 pub mod error;
 pub mod examples;
 pub mod handlers;
@@ -21,6 +22,7 @@ pub mod state;
 pub mod timestamps;
 pub mod valuation_endpoints;
 
+pub use connections::{ConnectionLimits, DEFAULT_HEADER_TIMEOUT, DEFAULT_IDLE_TIMEOUT, DEFAULT_MAX_CONNECTIONS};
 pub use handlers::{MAX_WAIT_SECONDS, WAIT_RECHECK};
 pub use state::{AppState, ServiceSettings};
 
@@ -39,7 +41,8 @@ pub const DEFAULT_MAX_BODY: usize = 16 * 1024 * 1024;
 /// long poll ends by itself first.
 pub const DEFAULT_REQUEST_TIMEOUT: Duration = Duration::from_secs(75);
 
-/// The routes, with body limit, auth, metrics and the request time limit.
+/// The routes, with body limit (a declared `Content-Length` over it refused before the
+/// body is read), auth, metrics and the request time limit.
 pub fn router(state: AppState) -> Router {
     let max_body = state.settings().max_body;
     Router::new()
@@ -64,6 +67,7 @@ pub fn router(state: AppState) -> Router {
         .layer(axum::middleware::from_fn_with_state(state.settings().access.clone(), auth::require_token))
         .layer(axum::middleware::from_fn_with_state(state.clone(), handlers::limit_time))
         .layer(DefaultBodyLimit::max(max_body))
+        .layer(axum::middleware::from_fn_with_state(max_body, body::refuse_declared_oversize))
         .layer(axum::middleware::from_fn_with_state(state.metrics().clone(), metrics::record))
         .with_state(state)
 }
@@ -110,20 +114,19 @@ pub fn start(
     if let Some(url) = store.listen_url() {
         tokio::spawn(handlers::forward_store_notifications(url, state.clone(), shutdown_rx.clone()));
     }
+    let limits = state.settings().connections;
+    let metrics = state.metrics().clone();
     let app = router(state);
-    let mut on_shutdown = shutdown_rx;
     let trigger = shutdown_tx.clone();
     tokio::spawn(async move {
         stop.await;
         let _ = trigger.send(true);
     });
-    let task = tokio::spawn(async move {
-        axum::serve(listener, app.into_make_service())
-            .with_graceful_shutdown(async move {
-                let _ = on_shutdown.wait_for(|down| *down).await;
-                tracing::info!("shutting down: no new connections, finishing requests in flight");
-            })
-            .await
+    let mut on_shutdown = shutdown_rx.clone();
+    tokio::spawn(async move {
+        let _ = on_shutdown.wait_for(|down| *down).await;
+        tracing::info!("shutting down: no new connections, finishing requests in flight");
     });
+    let task = tokio::spawn(connections::serve(listener, app, limits, metrics, shutdown_rx));
     Ok(RunningServer { addr, shutdown: shutdown_tx, task })
 }

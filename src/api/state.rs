@@ -2,6 +2,7 @@
 //! that wake long-polling readers.
 
 use super::auth::Access;
+use super::connections::ConnectionLimits;
 use super::error::ApiError;
 use super::metrics::Metrics;
 use crate::store::{AnyStore, StoreError};
@@ -18,6 +19,8 @@ pub struct ServiceSettings {
     pub max_body: usize,
     /// Limit on handling one request.
     pub request_timeout: Duration,
+    /// Header and idle timeouts, connection cap.
+    pub connections: ConnectionLimits,
 }
 
 /// Shared state of the handlers.
@@ -65,9 +68,13 @@ impl AppState {
     pub(super) fn shutting_down(&self) -> watch::Receiver<bool> {
         self.inner.shutting_down.clone()
     }
-    /// Counts a failed store `operation` and turns its error into the response's.
+    /// Counts a failed store `operation` and turns its error into the response's. A
+    /// value the store refused is the request's fault and not counted: a counter
+    /// anyone can raise would be a false alarm.
     pub(super) fn store_failed(&self, operation: &str, e: StoreError) -> ApiError {
-        self.metrics().store_error(operation);
+        if !matches!(e, StoreError::Refused(_)) {
+            self.metrics().store_error(operation);
+        }
         e.into()
     }
 }

@@ -41,15 +41,31 @@ pub struct ValuationRequest {
     pub positions: Vec<PositionDoc>,
 }
 
-/// The text, format and field path of a snapshot given inline (`inline`) or by the id
-/// of a stored one; `None` when neither is given and `required` is false.
+/// A snapshot to value against: given inline (still a JSON value; written out as text
+/// on the blocking pool), or the text of a stored one.
+enum GivenSnapshot {
+    Inline(serde_json::Value),
+    Stored(String, SnapshotFormat),
+}
+
+impl GivenSnapshot {
+    fn into_text(self) -> (String, SnapshotFormat) {
+        match self {
+            Self::Inline(doc) => (doc.to_string(), SnapshotFormat::Json),
+            Self::Stored(text, format) => (text, format),
+        }
+    }
+}
+
+/// The snapshot given inline (`inline`) or by the id of a stored one, with its field
+/// path; `None` when neither is given and `required` is false.
 async fn valuation_snapshot(
     state: &AppState,
-    inline: Option<&serde_json::Value>,
+    inline: Option<serde_json::Value>,
     id: Option<i64>,
     (field, id_field): (&str, &str),
     required: bool,
-) -> Result<Option<(String, SnapshotFormat, FieldPath)>, ApiError> {
+) -> Result<Option<(GivenSnapshot, FieldPath)>, ApiError> {
     let root = FieldPath::root();
     match (inline, id) {
         (Some(_), Some(_)) => {
@@ -59,7 +75,7 @@ async fn valuation_snapshot(
             Err(InputErrors::one(root.field(field), format!("give {field} or {id_field}")).into())
         }
         (None, None) => Ok(None),
-        (Some(doc), None) => Ok(Some((doc.to_string(), SnapshotFormat::Json, root.field(field)))),
+        (Some(doc), None) => Ok(Some((GivenSnapshot::Inline(doc), root.field(field)))),
         (None, Some(id)) => {
             let stored = state.store().get(id, true).await.map_err(|e| state.store_failed("get", e))?;
             let Some((media_type, text)) = stored.and_then(|s| s.input) else {
@@ -67,9 +83,18 @@ async fn valuation_snapshot(
             };
             let format = SnapshotFormat::from_media_type(&media_type)
                 .ok_or_else(|| ApiError::Internal(format!("stored snapshot {id} has media type {media_type:?}")))?;
-            Ok(Some((text, format, root.field(field))))
+            Ok(Some((GivenSnapshot::Stored(text, format), root.field(field))))
         }
     }
+}
+
+/// Runs `work` on the blocking pool: parsing a body of megabytes on the async threads
+/// would hold up every other request (probes included) meanwhile.
+async fn off_runtime<T: Send + 'static>(
+    what: &str,
+    work: impl FnOnce() -> Result<T, ApiError> + Send + 'static,
+) -> Result<T, ApiError> {
+    tokio::task::spawn_blocking(work).await.map_err(|e| ApiError::Internal(format!("{what} task failed: {e}")))?
 }
 
 /// Value a book of variance, gamma and leverage swaps.
@@ -96,28 +121,29 @@ pub async fn post_valuation(
     State(state): State<AppState>,
     JsonText(text): JsonText,
 ) -> Result<Json<ValuationDoc>, ApiError> {
-    let request: ValuationRequest = parse_json(&text)?;
+    let request: ValuationRequest = off_runtime("parse", move || Ok(parse_json(&text)?)).await?;
     let names = ("snapshot", "snapshot_id");
-    let current = valuation_snapshot(&state, request.snapshot.as_ref(), request.snapshot_id, names, true).await?;
+    let current = valuation_snapshot(&state, request.snapshot, request.snapshot_id, names, true).await?;
     let since_names = ("since_snapshot", "since_snapshot_id");
     let since =
-        valuation_snapshot(&state, request.since_snapshot.as_ref(), request.since_snapshot_id, since_names, false)
-            .await?;
+        valuation_snapshot(&state, request.since_snapshot, request.since_snapshot_id, since_names, false).await?;
     let book = BookDoc { holidays: request.holidays, positions: request.positions };
-    let doc = tokio::task::spawn_blocking(move || -> Result<ValuationDoc, InputErrors> {
-        let analyse = |(text, format, prefix): (String, SnapshotFormat, FieldPath)| {
+    let doc = off_runtime("valuation", move || -> Result<ValuationDoc, ApiError> {
+        let analyse = |(given, prefix): (GivenSnapshot, FieldPath)| {
+            let (text, format) = given.into_text();
             let parsed = wire::parse_snapshot_as(&text, &format).map_err(|e| e.within(&prefix))?;
             wire::analyze_valid(parsed).map_err(|e| e.within(&prefix))
         };
         let (snapshot, analysis) = match current {
             Some(given) => analyse(given)?,
-            None => return Err(InputErrors::one(FieldPath::root().field("snapshot"), "give snapshot or snapshot_id")),
+            None => {
+                return Err(InputErrors::one(FieldPath::root().field("snapshot"), "give snapshot or snapshot_id").into())
+            }
         };
         let earlier = since.map(analyse).transpose()?;
-        valuation::value_book(&snapshot, &analysis, &book, earlier.as_ref().map(|(s, a)| (s, a)))
+        Ok(valuation::value_book(&snapshot, &analysis, &book, earlier.as_ref().map(|(s, a)| (s, a)))?)
     })
-    .await
-    .map_err(|e| ApiError::Internal(format!("valuation task failed: {e}")))??;
+    .await?;
     Ok(Json(doc))
 }
 
@@ -138,6 +164,10 @@ pub async fn post_valuation(
     security((), ("bearer" = []))
 )]
 pub async fn post_realized(JsonText(text): JsonText) -> Result<Json<RealizedOutDoc>, ApiError> {
-    let doc: ClosesDoc = parse_json(&text)?;
-    Ok(Json(valuation::realized_doc(&doc.closes, doc.annualization)?))
+    let out = off_runtime("realized", move || {
+        let doc: ClosesDoc = parse_json(&text)?;
+        Ok(valuation::realized_doc(&doc.closes, doc.annualization)?)
+    })
+    .await?;
+    Ok(Json(out))
 }

@@ -318,6 +318,7 @@ pub fn run_demo(args: &DemoArgs, out: &mut dyn Write) -> Result<(), CliError> {
             access: Access::default(),
             max_body: DEFAULT_MAX_BODY,
             request_timeout: DEFAULT_REQUEST_TIMEOUT,
+            connections: api::ConnectionLimits::default(),
         };
         let server = api::start(listener, store, settings, termination_signal()).map_err(|e| CliError::Serve(e.to_string()))?;
         let base = format!("http://{}", server.addr);

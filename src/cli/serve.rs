@@ -3,7 +3,10 @@
 
 use super::CliError;
 use crate::api::auth::{Access, Token};
-use crate::api::{self, ServiceSettings, DEFAULT_REQUEST_TIMEOUT};
+use crate::api::{
+    self, ConnectionLimits, ServiceSettings, DEFAULT_HEADER_TIMEOUT, DEFAULT_IDLE_TIMEOUT, DEFAULT_MAX_CONNECTIONS,
+    DEFAULT_REQUEST_TIMEOUT,
+};
 use crate::store::{redact_url, AnyStore};
 use clap::{Args, ValueEnum};
 use std::net::{SocketAddr, ToSocketAddrs};
@@ -40,6 +43,15 @@ pub struct ServeArgs {
     /// Longest handling of one request, seconds.
     #[arg(long, env = "LOGSTRIP_REQUEST_TIMEOUT", default_value_t = DEFAULT_REQUEST_TIMEOUT.as_secs())]
     pub request_timeout: u64,
+    /// Longest time, seconds, from the first byte of a request head to its end.
+    #[arg(long, env = "LOGSTRIP_HEADER_TIMEOUT", default_value_t = DEFAULT_HEADER_TIMEOUT.as_secs())]
+    pub header_timeout: u64,
+    /// Seconds a connection may stay open with no request in progress and no bytes moving.
+    #[arg(long, env = "LOGSTRIP_IDLE_TIMEOUT", default_value_t = DEFAULT_IDLE_TIMEOUT.as_secs())]
+    pub idle_timeout: u64,
+    /// Most connections open at once.
+    #[arg(long, env = "LOGSTRIP_MAX_CONNECTIONS", default_value_t = DEFAULT_MAX_CONNECTIONS)]
+    pub max_connections: usize,
     /// Log format.
     #[arg(long, env = "LOGSTRIP_LOG_FORMAT", value_enum, default_value = "text")]
     pub log_format: LogFormat,
@@ -98,8 +110,17 @@ impl ServeConfig {
             .and_then(|mut a| a.next())
             .ok_or_else(|| CliError::Config(format!("--listen: not an address: {:?}", args.listen)))?;
         let max_body = parse_bytes(&args.max_body).map_err(|m| CliError::Config(format!("--max-body: {m}")))?;
-        if args.request_timeout == 0 {
-            return Err(CliError::Config("--request-timeout: must be at least 1 second".into()));
+        for (flag, seconds) in [
+            ("--request-timeout", args.request_timeout),
+            ("--header-timeout", args.header_timeout),
+            ("--idle-timeout", args.idle_timeout),
+        ] {
+            if seconds == 0 {
+                return Err(CliError::Config(format!("{flag}: must be at least 1 second")));
+            }
+        }
+        if args.max_connections == 0 {
+            return Err(CliError::Config("--max-connections: must be at least 1".into()));
         }
         let write = args.token_file.as_ref().map(|p| read_token(p, "--token-file")).transpose()?;
         let read = args.read_token_file.as_ref().map(|p| read_token(p, "--read-token-file")).transpose()?;
@@ -119,8 +140,29 @@ impl ServeConfig {
                 access: Access { write, read },
                 max_body,
                 request_timeout: Duration::from_secs(args.request_timeout),
+                connections: ConnectionLimits {
+                    header_timeout: Duration::from_secs(args.header_timeout),
+                    idle_timeout: Duration::from_secs(args.idle_timeout),
+                    max_connections: args.max_connections,
+                },
             },
             log_format: args.log_format,
+        })
+    }
+
+    /// The warning for a service without a write token, if it has none: who can write
+    /// depends on the address it listens on.
+    pub fn open_access_warning(&self) -> Option<String> {
+        if self.settings.access.write.is_some() {
+            return None;
+        }
+        Some(if self.listen.ip().is_loopback() {
+            format!("no token configured: any local process can write through {}", self.listen)
+        } else {
+            format!(
+                "no token configured and --insecure-public given: anyone who can reach {} can read and write",
+                self.listen
+            )
         })
     }
 
@@ -128,13 +170,17 @@ impl ServeConfig {
     pub fn describe(&self) -> String {
         let access = &self.settings.access;
         format!(
-            "listen={} database={} write_token={} read_token={} max_body={} request_timeout={}s",
+            "listen={} database={} write_token={} read_token={} max_body={} request_timeout={}s \
+             header_timeout={}s idle_timeout={}s max_connections={}",
             self.listen,
             redact_url(&self.database),
             if access.write.is_some() { "set" } else { "none" },
             if access.read.is_some() { "set" } else { "none" },
             self.settings.max_body,
-            self.settings.request_timeout.as_secs()
+            self.settings.request_timeout.as_secs(),
+            self.settings.connections.header_timeout.as_secs(),
+            self.settings.connections.idle_timeout.as_secs(),
+            self.settings.connections.max_connections
         )
     }
 }
@@ -185,8 +231,8 @@ pub fn run_serve(args: &ServeArgs) -> Result<(), CliError> {
     let runtime = tokio::runtime::Runtime::new().map_err(|e| CliError::Serve(format!("runtime: {e}")))?;
     runtime.block_on(async move {
         tracing::info!(configuration = %config.describe(), "starting logstrip serve");
-        if config.settings.access.write.is_none() {
-            tracing::warn!("no token configured: anyone who can reach {} can write; listening on loopback only unless --insecure-public", config.listen);
+        if let Some(warning) = config.open_access_warning() {
+            tracing::warn!("{warning}");
         }
         let store = AnyStore::open(&config.database)
             .await

@@ -48,13 +48,41 @@ fn snapshot_from_row(row: &PgRow, with_input: bool) -> Result<StoredSnapshot, St
     })
 }
 
+/// `url` without secret query parameters the driver does not take (`sslpassword`,
+/// say): it would log their values when ignoring them. Each one dropped is logged by
+/// name only. `password` is kept: the driver takes it.
+fn without_unsupported_secrets(url: &str) -> String {
+    let Ok(mut parsed) = url::Url::parse(url) else {
+        return url.to_string();
+    };
+    if parsed.query().is_none() {
+        return url.to_string();
+    }
+    let (kept, dropped): (Vec<_>, Vec<_>) = parsed
+        .query_pairs()
+        .map(|(k, v)| (k.into_owned(), v.into_owned()))
+        .partition(|(k, _)| k == "password" || !super::is_secret_parameter(k));
+    if dropped.is_empty() {
+        return url.to_string();
+    }
+    for (key, _) in &dropped {
+        tracing::warn!(%key, "ignoring a connect parameter the driver does not support (value not shown)");
+    }
+    if kept.is_empty() {
+        parsed.set_query(None);
+    } else {
+        parsed.query_pairs_mut().clear().extend_pairs(kept);
+    }
+    parsed.to_string()
+}
+
 impl PostgresStore {
     /// Connects to and migrates the database at `url`.
     ///
     /// # Errors
     /// [`StoreError`] when the server cannot be reached or the schema not migrated.
     pub async fn open(url: &str) -> Result<Self, StoreError> {
-        let options = PgConnectOptions::from_str(url)
+        let options = PgConnectOptions::from_str(&without_unsupported_secrets(url))
             .map_err(|e| StoreError::Config(format!("{}: {e}", super::redact_url(url))))?;
         let pool = PgPoolOptions::new()
             .max_connections(MAX_CONNECTIONS)
@@ -201,7 +229,14 @@ impl Store for PostgresStore {
     }
 
     async fn ping(&self) -> Result<(), StoreError> {
-        sqlx::query("SELECT 1").execute(&self.pool).await?;
+        // What an insert needs: a connection, a writable database (not a standby) and
+        // the table's ROW EXCLUSIVE lock, which `LOCK TABLE` or a migration holding a
+        // stronger one would make it wait for. Taken with a short lock timeout, then
+        // rolled back: nothing is written.
+        let mut tx = self.pool.begin().await?;
+        sqlx::query("SET LOCAL lock_timeout = '1s'").execute(&mut *tx).await?;
+        sqlx::query("LOCK TABLE snapshots IN ROW EXCLUSIVE MODE").execute(&mut *tx).await?;
+        tx.rollback().await?;
         Ok(())
     }
 }

@@ -215,7 +215,11 @@ impl Store for SqliteStore {
     }
 
     async fn ping(&self) -> Result<(), StoreError> {
-        sqlx::query("SELECT 1").execute(&self.pool).await?;
+        // What an insert needs: the database's write lock (`BEGIN IMMEDIATE`, as
+        // `insert` takes it), which another writer holding it makes us wait for.
+        // Rolled back at once: nothing is written.
+        let tx = self.pool.begin_with("BEGIN IMMEDIATE").await?;
+        tx.rollback().await?;
         Ok(())
     }
 }

@@ -7,7 +7,7 @@ use crate::analytics::analysis::AnalyzeOptions;
 use crate::analytics::calibrate::{FitSpec, LeverageTarget, ModelKind, ParamName};
 use crate::analytics::slice::{PriceQuote, Slice, SliceError, VolQuote};
 use crate::analytics::smile::SmileMethod;
-use chrono::{DateTime, Utc};
+use chrono::{DateTime, Timelike, Utc};
 use serde::Deserialize;
 
 /// A snapshot of option smiles, as written by users.
@@ -310,6 +310,15 @@ pub fn year_fraction(as_of: DateTime<Utc>, expiry: DateTime<Utc>) -> f64 {
 
 fn parse_time(text: &str, path: FieldPath, problems: &mut Problems) -> Option<DateTime<Utc>> {
     match DateTime::parse_from_rfc3339(text) {
+        // A leap second has no place on the ACT/365F clock, and would read :60 in one
+        // output and :00 of the next minute in another; refused rather than moved.
+        Ok(t) if t.nanosecond() >= 1_000_000_000 => {
+            problems.push(
+                path,
+                format!("leap seconds (:60) are not accepted; give 23:59:59 or the next minute, got {text:?}"),
+            );
+            None
+        }
         Ok(t) => Some(t.with_timezone(&Utc)),
         Err(e) => {
             problems.push(path, format!("must be an RFC 3339 time such as 2026-11-30T15:30:00Z ({e}), got {text:?}"));
@@ -330,12 +339,30 @@ pub(crate) fn too_many_expiries(count: usize) -> String {
     format!("at most {MAX_EXPIRIES} expiries per document, got {count}; split it into several")
 }
 
+/// Longest underlying name, in characters (not bytes).
+pub const MAX_UNDERLYING_CHARS: usize = 200;
+
+/// What is wrong with an underlying name, if anything: empty, longer than
+/// [`MAX_UNDERLYING_CHARS`] characters, or holding a control character (NUL, line
+/// breaks, ...), which no store keeps alike and no log shows plainly.
+pub fn underlying_problem(name: &str) -> Option<String> {
+    if name.trim().is_empty() {
+        return Some("must not be empty".into());
+    }
+    let count = name.chars().count();
+    if count > MAX_UNDERLYING_CHARS {
+        return Some(format!("must be at most {MAX_UNDERLYING_CHARS} characters, got {count}"));
+    }
+    name.chars()
+        .enumerate()
+        .find(|(_, c)| c.is_control())
+        .map(|(i, c)| format!("must not contain control characters, got U+{:04X} at character {}", u32::from(c), i + 1))
+}
+
 fn header(underlying: &str, as_of: &str, spot: Option<f64>, problems: &mut Problems) -> Option<DateTime<Utc>> {
     let root = FieldPath::root();
-    if underlying.trim().is_empty() {
-        problems.push(root.field("underlying"), "must not be empty");
-    } else if underlying.len() > 200 {
-        problems.push(root.field("underlying"), "must be at most 200 characters");
+    if let Some(message) = underlying_problem(underlying) {
+        problems.push(root.field("underlying"), message);
     }
     if let Some(s) = spot {
         if !(s.is_finite() && s > 0.0) {

@@ -36,7 +36,12 @@ impl TestServer {
 
 /// Default settings: no tokens, 16 MiB bodies.
 pub fn open_settings() -> ServiceSettings {
-    ServiceSettings { access: Access::default(), max_body: DEFAULT_MAX_BODY, request_timeout: DEFAULT_REQUEST_TIMEOUT }
+    ServiceSettings {
+        access: Access::default(),
+        max_body: DEFAULT_MAX_BODY,
+        request_timeout: DEFAULT_REQUEST_TIMEOUT,
+        connections: api::ConnectionLimits::default(),
+    }
 }
 
 /// Starts a server on port 0 over `store`.
