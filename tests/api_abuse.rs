@@ -60,7 +60,7 @@ async fn a_100000_point_slice_is_analysed_or_refused_clearly() {
 async fn a_body_sent_too_slowly_gets_408() {
     let settings = ServiceSettings { request_timeout: Duration::from_secs(1), ..open_settings() };
     let server = start_sqlite(settings).await;
-    let address = server.base.trim_start_matches("http://").to_string();
+    let address = server.address();
     let mut stream = tokio::net::TcpStream::connect(&address).await.expect("connect");
     let head = format!(
         "POST /v1/analyze HTTP/1.1\r\nHost: {address}\r\nContent-Type: application/json\r\nContent-Length: 1000\r\n\r\n{{"
@@ -171,7 +171,7 @@ async fn closed_within(stream: &mut tokio::net::TcpStream, within: Duration) -> 
 #[tokio::test]
 async fn a_trickled_request_head_is_closed_after_the_header_timeout() {
     let server = start_sqlite(tight_limits()).await;
-    let address = server.base.trim_start_matches("http://").to_string();
+    let address = server.address();
     let mut stream = tokio::net::TcpStream::connect(&address).await.expect("connect");
     let (mut reader, mut writer) = stream.split();
     let trickle = async {
@@ -202,7 +202,7 @@ async fn a_trickled_request_head_is_closed_after_the_header_timeout() {
 #[tokio::test]
 async fn idle_connections_are_closed_but_a_long_poll_is_not() {
     let server = start_sqlite(tight_limits()).await;
-    let address = server.base.trim_start_matches("http://").to_string();
+    let address = server.address();
     // Silent from the start.
     let mut silent = tokio::net::TcpStream::connect(&address).await.expect("connect");
     // Idle after one request on a kept-alive connection.
@@ -234,7 +234,7 @@ async fn idle_connections_are_closed_but_a_long_poll_is_not() {
 #[tokio::test]
 async fn more_connections_than_the_cap_leave_the_probe_answering() {
     let server = start_sqlite(tight_limits()).await;
-    let address = server.base.trim_start_matches("http://").to_string();
+    let address = server.address();
     let mut held = Vec::new();
     for _ in 0..20 {
         let mut stream = tokio::net::TcpStream::connect(&address).await.expect("connect");
@@ -260,7 +260,7 @@ async fn more_connections_than_the_cap_leave_the_probe_answering() {
 #[tokio::test]
 async fn a_declared_body_over_the_limit_is_refused_before_100_continue() {
     let server = start_sqlite(tight_limits()).await;
-    let address = server.base.trim_start_matches("http://").to_string();
+    let address = server.address();
     let mut stream = tokio::net::TcpStream::connect(&address).await.expect("connect");
     let head = format!(
         "POST /v1/analyze HTTP/1.1\r\nHost: {address}\r\nContent-Type: application/json\r\n\

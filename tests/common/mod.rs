@@ -26,6 +26,11 @@ impl TestServer {
         format!("{}{path}", self.base)
     }
 
+    /// `host:port` of the server, for raw TCP connections.
+    pub fn address(&self) -> String {
+        self.base.trim_start_matches("http://").to_string()
+    }
+
     /// Graceful shutdown.
     pub async fn shutdown(&mut self) {
         if let Some(s) = self.server.take() {

@@ -532,11 +532,7 @@ impl LeverageCurve {
                 out.chebyshev_alpha = alpha.to_bits();
             }
             if let Some(cheb) = &out.chebyshev {
-                let (gaps, xs): (Vec<usize>, Vec<f64>) =
-                    out.z.iter().enumerate().filter(|(_, zz)| zz.abs() > radius).map(|(g, zz)| (g, -zz)).unzip();
-                // ln x = ln mu + alpha ln gap: one logarithm per evaluation, not per gap.
-                let ln_mu = mu.ln();
-                let logs: Vec<f64> = gaps.iter().map(|&g| ln_mu + alpha * self.ln_gaps[g]).collect();
+                let (gaps, xs, logs) = self.gaps_beyond(alpha, mu, radius, &out.z, |_| true);
                 let mut values = Vec::with_capacity(xs.len());
                 cheb.values_with_logs(&xs, &logs, &mut values);
                 for (g, v) in gaps.into_iter().zip(values) {
@@ -595,6 +591,30 @@ impl LeverageCurve {
         radius
     }
 
+    /// The gaps beyond the series radius (`|z| > radius`, on the negative axis, `mu > 0`)
+    /// whose `ln x` passes `keep`, with `x = -z` and `ln x = ln mu + a ln gap` (one
+    /// logarithm per evaluation instead of one per gap).
+    fn gaps_beyond(
+        &self,
+        alpha: f64,
+        mu: f64,
+        radius: f64,
+        z: &[f64],
+        keep: impl Fn(f64) -> bool,
+    ) -> (Vec<usize>, Vec<f64>, Vec<f64>) {
+        let ln_mu = mu.ln();
+        let (mut gaps, mut xs, mut logs) = (Vec::new(), Vec::new(), Vec::new());
+        for (g, zz) in z.iter().enumerate() {
+            let u = ln_mu + alpha * self.ln_gaps[g];
+            if zz.abs() > radius && keep(u) {
+                gaps.push(g);
+                xs.push(-zz);
+                logs.push(u);
+            }
+        }
+        (gaps, xs, logs)
+    }
+
     /// Both derivatives beyond the series radius: from the shared contour, where its
     /// value was taken (the same nodes, so the same acceptance), else from the
     /// single-point evaluator with a backward difference in `a`.
@@ -604,18 +624,7 @@ impl LeverageCurve {
         let cheb = out.chebyshev.take();
         let mut interpolated = vec![false; m];
         if let Some(cheb) = &cheb {
-            // ln x = ln mu + alpha ln gap (the interpolant exists only for mu > 0).
-            let ln_mu = mu.ln();
-            let mut gaps = Vec::new();
-            let (mut xs, mut logs) = (Vec::new(), Vec::new());
-            for (g, zz) in out.z.iter().enumerate() {
-                let u = ln_mu + alpha * self.ln_gaps[g];
-                if zz.abs() > radius && cheb.contains_log(u) {
-                    gaps.push(g);
-                    xs.push(-zz);
-                    logs.push(u);
-                }
-            }
+            let (gaps, xs, logs) = self.gaps_beyond(alpha, mu, radius, &out.z, |u| cheb.contains_log(u));
             let mut values = Vec::with_capacity(xs.len());
             cheb.eval_many_with_logs(&xs, &logs, &mut values);
             for (g, [value, d_z, d_a]) in gaps.into_iter().zip(values) {
