@@ -181,48 +181,85 @@ fn wing_integrals(
 /// Standard deviation of each level from the quotes' noise, for level sensitivities
 /// `c` at the kept quotes (see the module documentation) and to the SVI parameters
 /// directly `parameter_sensitivity` (per level; zero unless the wings follow SVI),
-/// with the noise estimated
-/// from the residuals: `s^2 = sum (r_i / u_i)^2 / (n - trace T)` in the quotes' noise
-/// units `u_i`, the residual degrees of freedom counting the SVI stage's five
-/// parameters and the spline's (`trace T = trace P + trace H - trace H P`). A fit with
-/// no residual degrees of freedom (interpolation) has no noise to estimate: zero.
-/// `None` when a solve fails.
+/// with the noise estimated from the residuals ([`NoiseResponse::new`]). `None` when
+/// the lengths disagree or a solve fails.
 pub fn quote_noise_errors(
     noise: &QuoteNoise,
     c: &[[f64; 3]],
     parameter_sensitivity: &[[f64; 5]; 3],
 ) -> Option<[f64; 3]> {
-    let n = noise.k.len();
-    if n != c.len() || n != noise.residual.len() || n != noise.scale.len() || n != noise.svi_weights.len() {
+    if c.len() != noise.k.len() {
         return None;
     }
-    let jacobian: Vec<[f64; 5]> = noise.k.iter().map(|&k| noise.svi.total_variance_gradient(k)).collect();
-    let normal = normal_matrix(&jacobian, &noise.svi_weights)?;
-    let smoother = match &noise.spline {
-        Some((weights, lambda)) => Some(smoothing_spline::Smoother::new(&noise.k, weights, *lambda).ok()?),
-        None => None,
-    };
-    let sd = noise_sd(noise, &jacobian, &normal, smoother.as_ref())?;
-    // H' u for the three levels' sensitivities at once.
-    let hat_transposed = match (smoother.as_ref(), &noise.spline) {
-        (Some(smoother), Some((weights, _))) => Some(hat_transpose_times(smoother, weights, c)),
-        _ => None,
-    };
-    let mut out = [0.0; 3];
-    for (l, slot) in out.iter_mut().enumerate() {
-        let u: Vec<f64> = c.iter().map(|row| row[l]).collect();
-        let h_u: Option<Vec<f64>> = hat_transposed.as_ref().map(|h| h.iter().map(|row| row[l]).collect());
-        let mut r = response(noise, &jacobian, &normal, h_u.as_deref(), &u);
-        // Levels that move with SVI's parameters directly (wings that follow SVI):
-        // d' N^-1 A' W y responds to the quotes by W A N^-1 d.
-        let z = normal * nalgebra::Vector5::from_column_slice(&parameter_sensitivity[l]);
-        for (i, row) in jacobian.iter().enumerate() {
-            r[i] += noise.svi_weights[i] * (0..5).map(|a| row[a] * z[a]).sum::<f64>();
+    Some(NoiseResponse::new(noise)?.level_sd(c, parameter_sensitivity))
+}
+
+/// The quotes' estimated noise and what the smile's linear response to it needs besides
+/// the levels' sensitivities: the SVI stage's Jacobian and normal matrix, and the
+/// residual spline's smoother.
+struct NoiseResponse<'a> {
+    noise: &'a QuoteNoise,
+    jacobian: Vec<[f64; 5]>,
+    normal: nalgebra::Matrix5<f64>,
+    /// With the residual spline: its smoother and weights.
+    smoother: Option<(smoothing_spline::Smoother, &'a [f64])>,
+    /// Each kept quote's estimated noise in total variance.
+    sd: Vec<f64>,
+}
+
+impl<'a> NoiseResponse<'a> {
+    /// The noise estimated from the residuals: `s^2 = sum (r_i / u_i)^2 / (n - trace T)`
+    /// in the quotes' noise units `u_i`, the residual degrees of freedom counting the SVI
+    /// stage's five parameters and the spline's (`trace T = trace P + trace H - trace H P`).
+    /// A fit with no residual degrees of freedom (interpolation) has no noise to
+    /// estimate: zero. `None` when the lengths disagree or a solve fails.
+    fn new(noise: &'a QuoteNoise) -> Option<Self> {
+        let n = noise.k.len();
+        if n != noise.residual.len() || n != noise.scale.len() || n != noise.svi_weights.len() {
+            return None;
         }
-        let variance: f64 = r.iter().zip(&sd).map(|(r, s)| (r * s).powi(2)).sum();
-        *slot = variance.sqrt();
+        let jacobian: Vec<[f64; 5]> = noise.k.iter().map(|&k| noise.svi.total_variance_gradient(k)).collect();
+        let normal = normal_matrix(&jacobian, &noise.svi_weights)?;
+        let smoother = match &noise.spline {
+            Some((weights, lambda)) => {
+                Some((smoothing_spline::Smoother::new(&noise.k, weights, *lambda).ok()?, weights.as_slice()))
+            }
+            None => None,
+        };
+        let sd = noise_sd(noise, &jacobian, &normal, smoother.as_ref().map(|(s, _)| s));
+        Some(Self { noise, jacobian, normal, smoother, sd })
     }
-    Some(out)
+
+    /// True when no noise was estimated (the fit interpolates its quotes): every level's
+    /// quote-noise part is then zero whatever its sensitivities, and they need not be
+    /// computed.
+    fn is_silent(&self) -> bool {
+        self.sd.iter().all(|s| *s == 0.0)
+    }
+
+    /// Each level's standard deviation for sensitivities `c` (one per kept quote) and
+    /// `parameter_sensitivity` (see [`quote_noise_errors`]).
+    fn level_sd(&self, c: &[[f64; 3]], parameter_sensitivity: &[[f64; 5]; 3]) -> [f64; 3] {
+        let (noise, jacobian, normal) = (self.noise, &self.jacobian, &self.normal);
+        // H' u for the three levels' sensitivities at once.
+        let hat_transposed =
+            self.smoother.as_ref().map(|(smoother, weights)| hat_transpose_times(smoother, weights, c));
+        let mut out = [0.0; 3];
+        for (l, slot) in out.iter_mut().enumerate() {
+            let u: Vec<f64> = c.iter().map(|row| row[l]).collect();
+            let h_u: Option<Vec<f64>> = hat_transposed.as_ref().map(|h| h.iter().map(|row| row[l]).collect());
+            let mut r = response(noise, jacobian, normal, h_u.as_deref(), &u);
+            // Levels that move with SVI's parameters directly (wings that follow SVI):
+            // d' N^-1 A' W y responds to the quotes by W A N^-1 d.
+            let z = normal * nalgebra::Vector5::from_column_slice(&parameter_sensitivity[l]);
+            for (i, row) in jacobian.iter().enumerate() {
+                r[i] += noise.svi_weights[i] * (0..5).map(|a| row[a] * z[a]).sum::<f64>();
+            }
+            let variance: f64 = r.iter().zip(&self.sd).map(|(r, s)| (r * s).powi(2)).sum();
+            *slot = variance.sqrt();
+        }
+        out
+    }
 }
 
 /// `T' u = P' u + H' u - P' H' u`: how the level `u' g` responds to each quote, with
@@ -244,13 +281,13 @@ fn response(
     }
 }
 
-/// Each kept quote's estimated noise in total variance (see [`quote_noise_errors`]).
+/// Each kept quote's estimated noise in total variance (see [`NoiseResponse::new`]).
 fn noise_sd(
     noise: &QuoteNoise,
     jacobian: &[[f64; 5]],
     normal_inverse: &nalgebra::Matrix5<f64>,
     smoother: Option<&smoothing_spline::Smoother>,
-) -> Option<Vec<f64>> {
+) -> Vec<f64> {
     let n = noise.k.len();
     let weights = &noise.svi_weights;
     // trace P = sum_i w_i a_i' N^-1 a_i.
@@ -271,7 +308,7 @@ fn noise_sd(
     let residual_dof = n as f64 - (trace_p + trace_h - trace_hp);
     let sum_sq: f64 = noise.residual.iter().zip(&noise.scale).map(|(r, u)| (r / u).powi(2)).sum();
     let s = if residual_dof > MIN_RESIDUAL_DOF { (sum_sq / residual_dof).sqrt() } else { 0.0 };
-    Some(noise.scale.iter().map(|u| s * u).collect())
+    noise.scale.iter().map(|u| s * u).collect()
 }
 
 /// Fewest residual degrees of freedom a noise estimate is made from: below it the fit
@@ -359,8 +396,14 @@ pub fn level_errors(smile: &FittedSmile, tau: f64) -> Option<LevelErrors> {
         SmileCurve::SviSpline(spline) if spline.wings_from_svi => Some(&spline.svi),
         _ => None,
     };
-    let (c, parameters) = knot_and_parameter_sensitivities(&noise.k, wings_follow, |k| curve.total_variance(k), tau);
-    let quote_noise = quote_noise_errors(noise, &c, &parameters)?;
+    let response = NoiseResponse::new(noise)?;
+    let quote_noise = if response.is_silent() {
+        [0.0; 3]
+    } else {
+        let (c, parameters) =
+            knot_and_parameter_sensitivities(&noise.k, wings_follow, |k| curve.total_variance(k), tau);
+        response.level_sd(&c, &parameters)
+    };
     let wings = match curve {
         SmileCurve::SviSpline(spline) => {
             let edges = (spline.edges()[0], spline.edges()[1]);
@@ -404,8 +447,13 @@ mod tests {
         for (got, want) in t_u.iter().zip(&u) {
             assert!((got - want).abs() < 1e-8 * want, "{got} vs {want}");
         }
-        let sd = noise_sd(&noise, &jacobian, &normal, Some(&smoother)).expect("sd");
+        let sd = noise_sd(&noise, &jacobian, &normal, Some(&smoother));
         assert!(sd.iter().all(|s| s.abs() < 1e-300));
+        // So the levels' sensitivities need not be computed: the response is silent,
+        // and any sensitivities give exactly zero.
+        let response = NoiseResponse::new(&noise).expect("response");
+        assert!(response.is_silent());
+        assert_eq!(quote_noise_errors(&noise, &rows, &[[1.0; 5]; 3]), Some([0.0; 3]));
     }
 
     #[test]
