@@ -123,6 +123,33 @@ async fn fit_nu_must_be_positive_as_the_document_says() {
 }
 
 #[tokio::test]
+async fn fixed_parameters_carry_the_solver_bounds_in_the_document() {
+    // The schema's bounds are the solver's own (schemathesis warned that they were
+    // missing): a value on a bound is accepted, one just beyond it is a 422 naming it.
+    use logstrip::analytics::calibrate::ParamName;
+    let doc = document();
+    let properties = &doc["components"]["schemas"]["FixDoc"]["properties"];
+    let server = start_sqlite(open_settings()).await;
+    for name in [ParamName::Hurst, ParamName::RhoNu, ParamName::MeanReversion] {
+        let (lo, hi) = name.bounds();
+        let schema = &properties[name.as_str()];
+        assert_eq!(schema["minimum"].as_f64(), Some(lo), "{}", name.as_str());
+        assert_eq!(schema["maximum"].as_f64(), Some(hi), "{}", name.as_str());
+        for (value, accepted) in [(lo, true), (hi, true), (hi + 0.01, false), (lo - 0.01, false)] {
+            let mut swaps = logstrip::api::examples::swaps_example();
+            swaps["fit"] = json!({"fix": {name.as_str(): value}});
+            let (status, problem) = post(&server, "/v1/fits", swaps).await;
+            if accepted {
+                assert_eq!(status, StatusCode::OK, "{} = {value}: {problem}", name.as_str());
+            } else {
+                assert_eq!(status, StatusCode::UNPROCESSABLE_ENTITY, "{} = {value}", name.as_str());
+                assert_eq!(named(&problem, "pointer"), vec![format!("/fit/fix/{}", name.as_str())]);
+            }
+        }
+    }
+}
+
+#[tokio::test]
 async fn closes_are_positive_numbers_without_gaps() {
     let doc = document();
     let closes = &doc["components"]["schemas"]["ClosesDoc"]["properties"]["closes"];

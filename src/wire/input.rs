@@ -128,18 +128,22 @@ pub struct FitDoc {
     pub nu: Option<f64>,
 }
 
-/// Fixed parameter values.
+/// Fixed parameter values, each within its search range (`ParamName::bounds`; the
+/// schema states the same bounds, and a test holds them equal).
 #[derive(Debug, Clone, Copy, Deserialize, Default, utoipa::ToSchema)]
 #[serde(deny_unknown_fields)]
 pub struct FixDoc {
     /// Hurst exponent.
     #[serde(default)]
+    #[schema(minimum = 0.01, maximum = 0.5)]
     pub hurst: Option<f64>,
     /// `rho * nu`.
     #[serde(default)]
+    #[schema(minimum = -5.0, maximum = 0.5)]
     pub rho_nu: Option<f64>,
     /// Mean reversion.
     #[serde(default)]
+    #[schema(minimum = 0.0, maximum = 20.0)]
     pub mean_reversion: Option<f64>,
 }
 
