@@ -355,6 +355,21 @@ async fn a_leap_second_as_of_is_refused_naming_the_field() {
     assert!(problem["errors"][0]["detail"].as_str().unwrap_or("").contains("leap second"), "{problem}");
 }
 
+#[tokio::test]
+async fn a_leap_second_in_a_position_is_refused_like_one_in_a_snapshot() {
+    // The positions' times follow the snapshot's rules (one parser for both).
+    let server = start_sqlite(open_settings()).await;
+    for field in ["start", "maturity"] {
+        let mut doc = logstrip::api::examples::valuation_example();
+        doc["positions"][1][field] = json!("2026-12-31T23:59:60Z");
+        let posted = post_json(&server, "/v1/valuations", doc.to_string()).await;
+        assert_eq!(posted.status(), StatusCode::UNPROCESSABLE_ENTITY, "{field}");
+        let problem: Value = posted.json().await.expect("problem");
+        assert_eq!(problem["errors"][0]["pointer"], format!("/positions/1/{field}"), "{problem}");
+        assert!(problem["errors"][0]["detail"].as_str().unwrap_or("").contains("leap second"), "{problem}");
+    }
+}
+
 /// A 6 MB valuation body (the demo snapshot and 32,000 positions) is valued, and the
 /// liveness probe answers while it is in flight. (How fast it answers is measured by
 /// the probe in the commit message, not asserted here.)

@@ -7,7 +7,7 @@ use crate::analytics::analysis::AnalyzeOptions;
 use crate::analytics::calibrate::{FitSpec, LeverageTarget, ModelKind, ParamName};
 use crate::analytics::slice::{PriceQuote, Slice, SliceError, VolQuote};
 use crate::analytics::smile::SmileMethod;
-use chrono::{DateTime, Timelike, Utc};
+use chrono::{DateTime, Utc};
 use serde::Deserialize;
 
 /// A snapshot of option smiles, as written by users.
@@ -313,22 +313,7 @@ pub fn year_fraction(as_of: DateTime<Utc>, expiry: DateTime<Utc>) -> f64 {
 }
 
 fn parse_time(text: &str, path: FieldPath, problems: &mut Problems) -> Option<DateTime<Utc>> {
-    match DateTime::parse_from_rfc3339(text) {
-        // A leap second has no place on the ACT/365F clock, and would read :60 in one
-        // output and :00 of the next minute in another; refused rather than moved.
-        Ok(t) if t.nanosecond() >= 1_000_000_000 => {
-            problems.push(
-                path,
-                format!("leap seconds (:60) are not accepted; give 23:59:59 or the next minute, got {text:?}"),
-            );
-            None
-        }
-        Ok(t) => Some(t.with_timezone(&Utc)),
-        Err(e) => {
-            problems.push(path, format!("must be an RFC 3339 time such as 2026-11-30T15:30:00Z ({e}), got {text:?}"));
-            None
-        }
-    }
+    super::time::parse_utc(text).map_err(|message| problems.push(path, message)).ok()
 }
 
 /// Most expiries one snapshot or swap set may carry. The fit's work grows faster than the

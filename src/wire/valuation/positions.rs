@@ -8,14 +8,10 @@ use crate::analytics::seasoned_swaps::{Accrued, Side, SwapKind};
 use crate::wire::path::{FieldPath, InputErrors, Problem};
 use chrono::{DateTime, NaiveDate, Utc};
 
+/// `text` as a UTC time, or a problem at `path` ([`crate::wire::time::parse_utc`]: the
+/// same rules as a snapshot's times, leap seconds refused).
 pub(super) fn parse_time(text: &str, path: FieldPath, problems: &mut Vec<Problem>) -> Option<DateTime<Utc>> {
-    match DateTime::parse_from_rfc3339(text) {
-        Ok(t) => Some(t.with_timezone(&Utc)),
-        Err(e) => {
-            problems.push(Problem { path, message: format!("must be an RFC 3339 time ({e}), got {text:?}") });
-            None
-        }
-    }
+    crate::wire::time::parse_utc(text).map_err(|message| problems.push(Problem { path, message })).ok()
 }
 
 /// What a position says has been realized.
