@@ -181,7 +181,8 @@ fn wing_integrals(
 /// Standard deviation of each level from the quotes' noise, for level sensitivities
 /// `c` at the kept quotes (see the module documentation) and to the SVI parameters
 /// directly `parameter_sensitivity` (per level; zero unless the wings follow SVI),
-/// with the noise estimated from the residuals ([`NoiseResponse::new`]). `None` when
+/// with the noise estimated from the residuals (`s^2 = sum (r_i / u_i)^2 / (n - trace T)`
+/// in the quotes' noise units `u_i`, zero when the fit interpolates). `None` when
 /// the lengths disagree or a solve fails.
 pub fn quote_noise_errors(
     noise: &QuoteNoise,
