@@ -19,6 +19,7 @@ pub mod openapi;
 pub mod query;
 pub mod responses;
 pub mod state;
+pub mod tenor_history;
 pub mod timestamps;
 pub mod valuation_endpoints;
 
