@@ -181,3 +181,90 @@ async fn tenor_csv_has_one_row_per_snapshot_and_tenor_in_vol_points() {
     assert_eq!(status, reqwest::StatusCode::BAD_REQUEST);
     assert!(media.starts_with("application/problem+json") && text.contains("rows"), "{text}");
 }
+
+/// Whether `svg` is well-formed XML as far as elements go: every tag closed in order
+/// (self-closing, comments, declarations and text skipped), with one `<svg>` root.
+fn well_formed_svg(svg: &str) -> bool {
+    let mut open: Vec<String> = Vec::new();
+    let mut rest = svg.trim();
+    if !rest.starts_with("<svg") {
+        return false;
+    }
+    while let Some(start) = rest.find('<') {
+        let Some(end) = rest[start..].find('>') else { return false };
+        let tag = &rest[start + 1..start + end];
+        rest = &rest[start + end + 1..];
+        if tag.starts_with('?') || tag.starts_with('!') || tag.ends_with('/') {
+            continue;
+        }
+        let name: String = tag.trim_start_matches('/').chars().take_while(|c| !c.is_whitespace()).collect();
+        if tag.starts_with('/') {
+            if open.pop().as_deref() != Some(name.as_str()) {
+                return false;
+            }
+        } else {
+            open.push(name);
+        }
+    }
+    open.is_empty() && rest.trim().is_empty()
+}
+
+#[test]
+fn the_well_formedness_check_finds_broken_svg() {
+    assert!(well_formed_svg("<svg a=\"1\"><g><a href=\"/\"><circle/></a></g><text>x</text></svg>\n"));
+    assert!(!well_formed_svg("<svg><g></svg>"));
+    assert!(!well_formed_svg("<svg><a></g></svg>"));
+    assert!(!well_formed_svg("<div></div>"));
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn tenor_chart_and_snapshot_chart_link_points_to_their_snapshots() {
+    let server = start_sqlite(open_settings()).await;
+    let ids = post_four(&server).await;
+    let (status, media, svg) = get_text(&server, "/v1/underlyings/KESTREL50/history/tenors.svg?tenors=1M,1Y").await;
+    assert_eq!(status, reqwest::StatusCode::OK);
+    assert_eq!(media, "image/svg+xml");
+    assert!(well_formed_svg(&svg), "well-formed SVG:\n{svg}");
+    assert!(svg.contains("variance swap vol (vol points)") && svg.contains(">1M</text>") && svg.contains(">1Y</text>"));
+    for id in &ids {
+        let link = format!("<a href=\"/?snapshot={id}\">");
+        assert_eq!(svg.matches(&link).count(), 2, "a linked point per tenor for snapshot {id}");
+    }
+    // A day's range, another figure.
+    let (status, _, day) = get_text(
+        &server,
+        "/v1/underlyings/KESTREL50/history/tenors.svg?figure=skew_25_delta&from=2026-11-30T00:00:00Z&to=2026-12-01T00:00:00Z",
+    )
+    .await;
+    assert_eq!(status, reqwest::StatusCode::OK);
+    assert!(well_formed_svg(&day) && day.contains("25-delta skew"));
+    assert_eq!(day.matches("<a href=").count(), 3 * 5, "three snapshots on the day, five tenors");
+    assert!(!day.contains(&format!("snapshot={}\"", ids[0])), "the evening before is outside the range");
+    for (query, parameter) in [("figure=vega", "figure"), ("tenors=5Y", "tenors"), ("from=yesterday", "from")] {
+        let (status, media, text) =
+            get_text(&server, &format!("/v1/underlyings/KESTREL50/history/tenors.svg?{query}")).await;
+        assert_eq!(status, reqwest::StatusCode::BAD_REQUEST, "{query}");
+        assert!(media.starts_with("application/problem+json") && text.contains(parameter), "{text}");
+    }
+    let (status, _, _) = get_text(&server, "/v1/underlyings/NOBODY/history/tenors.svg").await;
+    assert_eq!(status, reqwest::StatusCode::NOT_FOUND);
+    // The fit-parameter chart links its points too.
+    let (status, _, hurst) = get_text(&server, "/v1/underlyings/KESTREL50/history/chart.svg?param=hurst").await;
+    assert_eq!(status, reqwest::StatusCode::OK);
+    assert!(well_formed_svg(&hurst));
+    assert!(ids.iter().all(|id| hurst.contains(&format!("<a href=\"/?snapshot={id}\">"))), "{hurst}");
+    // Any stored snapshot's term-structure chart, by id.
+    let (status, media, chart) = get_text(&server, &format!("/v1/snapshots/{}/chart.svg", ids[1])).await;
+    assert_eq!((status, media.as_str()), (reqwest::StatusCode::OK, "image/svg+xml"));
+    assert!(chart.contains(&format!("(snapshot {})", ids[1])) && chart.contains("2026-11-30T09:30:00Z"));
+    assert!(chart.contains("<polyline"));
+    for missing in ["999999", "abc"] {
+        let (status, media, _) = get_text(&server, &format!("/v1/snapshots/{missing}/chart.svg")).await;
+        assert_eq!(status, reqwest::StatusCode::NOT_FOUND, "{missing}");
+        assert!(media.starts_with("application/problem+json"));
+    }
+    // The overview page is one page: a snapshot id is read by its script.
+    let (status, _, page) = get_text(&server, &format!("/?snapshot={}", ids[1])).await;
+    assert_eq!(status, reqwest::StatusCode::OK);
+    assert!(page.contains("SNAPSHOT_ID") && page.contains("/chart.svg"));
+}
