@@ -34,7 +34,7 @@ pub struct TimeSeries {
 /// Chart size and margins, pixels (the legend sits in the right margin).
 const WIDTH: f64 = 880.0;
 const HEIGHT: f64 = 400.0;
-const LEFT: f64 = 70.0;
+const LEFT: f64 = 84.0;
 const RIGHT: f64 = 150.0;
 const TOP: f64 = 40.0;
 const BOTTOM: f64 = 48.0;
@@ -116,8 +116,17 @@ pub fn time_chart_svg(
         tick += step;
     }
     let multi_day = t1 - t0 > Duration::hours(24);
-    for i in 0..=5 {
-        let t = t0 + Duration::milliseconds((span_s * 1000.0 * f64::from(i) / 5.0) as i64);
+    // Ticks on round clock times (UTC): the smallest step of the list giving at most 7.
+    const STEPS_S: [i64; 15] =
+        [60, 300, 600, 900, 1800, 3600, 7200, 10_800, 21_600, 43_200, 86_400, 172_800, 604_800, 1_209_600, 2_592_000];
+    let step_s = STEPS_S.iter().copied().find(|s| span_s / *s as f64 <= 7.0).unwrap_or(STEPS_S[14]);
+    let mut tick_s = t0.timestamp().div_euclid(step_s) * step_s;
+    if t1 == t0 {
+        tick_s = t0.timestamp();
+    } else if tick_s < t0.timestamp() {
+        tick_s += step_s;
+    }
+    while let Some(t) = DateTime::from_timestamp(tick_s, 0).filter(|t| *t <= t1 || t1 == t0) {
         let x = x_of(t);
         let label = if multi_day { t.format("%m-%d %H:%M") } else { t.format("%H:%M") };
         let _ = writeln!(
@@ -127,6 +136,10 @@ pub fn time_chart_svg(
             HEIGHT - BOTTOM,
             HEIGHT - BOTTOM + 18.0
         );
+        if t1 == t0 {
+            break;
+        }
+        tick_s += step_s;
     }
     let day_note = if multi_day { ", month-day time".to_string() } else { format!(", {}", t0.format("%Y-%m-%d")) };
     let _ = write!(

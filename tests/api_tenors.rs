@@ -268,3 +268,39 @@ async fn tenor_chart_and_snapshot_chart_link_points_to_their_snapshots() {
     assert_eq!(status, reqwest::StatusCode::OK);
     assert!(page.contains("SNAPSHOT_ID") && page.contains("/chart.svg"));
 }
+
+/// Changes are measured from current revisions: after a correction of 09:30, the 09:40
+/// row measures from the correction, and the superseded 09:30 row (listed with
+/// `revisions=all`) measures its day from the correction too.
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn changes_are_measured_from_current_revisions() {
+    let server = start_sqlite(open_settings()).await;
+    let mut ids = Vec::new();
+    let mut corrected = day_snapshot("0930", None);
+    corrected["spot"] = Value::from(corrected["spot"].as_f64().expect("spot") + 0.5);
+    for doc in [day_snapshot("0930", None), day_snapshot("0940", None), corrected] {
+        let response = post_json(&server, "/v1/snapshots", doc.to_string()).await;
+        assert_eq!(response.status(), reqwest::StatusCode::CREATED);
+        ids.push(response.json::<Value>().await.expect("JSON")["id"].as_i64().expect("id"));
+    }
+    let (first, later, correction) = (ids[0], ids[1], ids[2]);
+    let current = get_json(&server, "/v1/underlyings/KESTREL50/history").await;
+    let refs = |page: &Value| -> Vec<(i64, Option<i64>, Option<i64>)> {
+        page["items"]
+            .as_array()
+            .expect("items")
+            .iter()
+            .map(|i| (i["id"].as_i64().expect("id"), i["previous_id"].as_i64(), i["first_of_day_id"].as_i64()))
+            .collect()
+    };
+    assert_eq!(refs(&current), vec![(correction, None, Some(correction)), (later, Some(correction), Some(correction))]);
+    let all = get_json(&server, "/v1/underlyings/KESTREL50/history?revisions=all").await;
+    assert_eq!(
+        refs(&all),
+        vec![
+            (first, None, Some(correction)),
+            (correction, None, Some(correction)),
+            (later, Some(correction), Some(correction))
+        ]
+    );
+}

@@ -198,7 +198,7 @@ pub async fn get_history_chart(
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
     // Enough decimals that neighbouring ticks (about a sixth of the range apart) differ.
     let decimals = (2.0 - ((hi - lo).max(1e-9) / 10.0).log10().floor()).clamp(2.0, 8.0) as usize;
-    let title = format!("{underlying}: {param} through time ({} snapshots; a point opens its snapshot)", points.len());
+    let title = format!("{underlying}: {param} through time ({} snapshots)", points.len());
     let series = [TimeSeries { label: param.to_string(), points }];
     let svg = time_chart_svg(&title, param, &series, decimals).map_err(chart_failed)?;
     Ok(svg_response(svg, None))
@@ -211,6 +211,8 @@ pub fn snapshot_page(id: i64) -> String {
 
 /// The overview page.
 #[utoipa::path(get, path = "/", tag = "charts",
+    params(("snapshot" = Option<i64>, Query, description = "A stored snapshot to show instead of the latest \
+(read by the page's script; the page itself is the same)", example = 1)),
     responses((status = 200, description = "Overview page (HTML)", body = String, content_type = "text/html")))]
 pub async fn get_overview() -> Html<&'static str> {
     Html(OVERVIEW_HTML)

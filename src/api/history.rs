@@ -140,7 +140,7 @@ pub struct HistoryItem {
     /// Term structure.
     pub curve: Vec<HistoryPoint>,
     /// The standard tenors (1M, 3M, 6M, 1Y, 2Y) from `curve`, by the rule of the
-    /// analysis' `tenors`, with their changes (see [`HistoryTenor`]).
+    /// analysis' `tenors`, with their changes since `previous_id` and `first_of_day_id`.
     pub tenors: Vec<HistoryTenor>,
     /// Id of the snapshot the `change_since_previous` figures are measured from: the
     /// current revision of the latest `as_of` before this one; absent for the first.

@@ -143,7 +143,7 @@ pub async fn get_tenor_chart(
         }
     }
     let name = axis.split(" (").next().unwrap_or(axis);
-    let title = format!("{underlying}: {name} by tenor ({} snapshots; a point opens its snapshot)", records.len());
+    let title = format!("{underlying}: {name} by tenor ({} snapshots)", records.len());
     let svg = time_chart_svg(&title, axis, &series, 2).map_err(|e| match e {
         crate::chart_drawing::ChartError::Empty => {
             ApiError::NotFound(format!("no {figure} at these tenors for underlying {underlying:?} in the range"))
