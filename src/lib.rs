@@ -13,4 +13,5 @@ pub mod chart_drawing;
 pub mod cli;
 pub mod ingest;
 pub mod store;
+pub mod time_chart;
 pub mod wire;

@@ -1,7 +1,9 @@
 //! The overview page in headless Chromium (Debian package `chromium`, installed by
 //! `.ci/run` when missing): with snapshots loaded, the page renders the term-structure
 //! and parameter-history charts as inline SVG with drawn paths, shows the fit and the
-//! quality warnings, and logs no script errors. A screenshot is written to
+//! quality warnings, the standard tenors against the stored analysis and the linked
+//! tenor chart, opens a stored snapshot by id (`/?snapshot=ID`) with that snapshot's
+//! numbers, and logs no script error and no failed request. A screenshot is written to
 //! `target/overview.png` for people to look at.
 //!
 //! Without Chromium the test says it skipped, unless `LOGSTRIP_REQUIRE_BROWSER=1`
@@ -91,15 +93,74 @@ async fn overview_page_renders_charts_without_script_errors() {
     let status = status.split('<').next().unwrap_or("");
     assert!(status.contains("updated ") && status.trim_end().ends_with(" UTC"), "status in UTC: {status}");
     page_numbers_are_the_reports(&server, &dom).await;
-    for marker in ["Uncaught", "SyntaxError", "TypeError", "ReferenceError", ":ERROR:CONSOLE"] {
-        assert!(!log.contains(marker), "script error in the browser log ({marker}):\n{log}");
-    }
+    let latest = get_value(&server, "/v1/underlyings/KESTREL50/latest").await;
+    tenor_table_is_the_analysis(&dom, &latest);
+    let tenor_chart = dom.split("class=\"chart tenors\"").nth(1).expect("tenor chart container");
+    assert!(tenor_chart.contains("<svg") && tenor_chart.contains("<a href=\"/?snapshot="), "linked tenor chart");
+    assert_clean_log(&log);
+
+    // A stored snapshot by id (not the latest) shows that snapshot's numbers.
+    let history = get_value(&server, "/v1/underlyings/KESTREL50/history").await;
+    let older = history["items"][0]["id"].as_i64().expect("id");
+    assert_ne!(Some(older), latest["id"].as_i64());
+    let stored = get_value(&server, &format!("/v1/snapshots/{older}")).await;
+    let by_id = server.url(&format!("/?snapshot={older}&static=1"));
+    let browser_id = browser.clone();
+    let (dom_id, log_id) =
+        tokio::task::spawn_blocking(move || run_chromium(&browser_id, &by_id, &["--dump-dom"])).await.expect("join");
+    assert!(dom_id.contains(&format!("snapshot {older}")), "the page names the snapshot:\n{dom_id}");
+    assert!(dom_id.contains(&format!("as of {}", stored["as_of"].as_str().expect("as_of"))));
+    let term = dom_id.split("class=\"chart term\"").nth(1).expect("term chart container");
+    assert!(term.contains(&format!("(snapshot {older})")), "its own term-structure chart");
+    tenor_table_is_the_analysis(&dom_id, &stored);
+    assert!(dom_id.contains(&format!("<a href=\"/?snapshot={older}\" class=\"shown\">")), "marked in the day's list");
+    assert_clean_log(&log_id);
 
     let shot = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("target").join("overview.png");
     let shot_arg = format!("--screenshot={}", shot.display());
     let (_, _) = tokio::task::spawn_blocking(move || run_chromium(&browser, &url, &[&shot_arg])).await.expect("join");
     let png = std::fs::read(&shot).expect("screenshot written");
     assert!(png.starts_with(b"\x89PNG") && png.len() > 20_000, "a real screenshot ({} bytes)", png.len());
+}
+
+async fn get_value(server: &TestServer, path: &str) -> serde_json::Value {
+    server.client.get(server.url(path)).send().await.expect("GET").json().await.expect("JSON")
+}
+
+/// No script error, console error or failed request in Chromium's log.
+fn assert_clean_log(log: &str) {
+    for marker in [
+        "Uncaught",
+        "SyntaxError",
+        "TypeError",
+        "ReferenceError",
+        ":ERROR:CONSOLE",
+        "Failed to load resource",
+        "net::ERR_",
+    ] {
+        assert!(!log.contains(marker), "script error or failed request in the browser log ({marker}):\n{log}");
+    }
+}
+
+/// The tenors table shows the analysis' `tenors` in vol points to 2 decimals: for each
+/// tenor with figures, its row starts with the tenor and the variance-swap vol, and
+/// holds the at-the-money vol and the skew.
+fn tenor_table_is_the_analysis(dom: &str, analysis: &serde_json::Value) {
+    let table = dom.split("class=\"tenors\"").nth(1).expect("tenors table").split("</table>").next().unwrap_or("");
+    let tenors = analysis["tenors"].as_array().expect("tenors");
+    assert_eq!(tenors.len(), 5);
+    for t in tenors {
+        let name = t["tenor"].as_str().expect("name");
+        let Some(vol) = t["variance_swap_vol"].as_f64() else { continue };
+        let start = format!("<td>{name}</td><td>{:.2}</td>", 100.0 * vol);
+        let row = table.split("<tr").find(|r| r.contains(&start));
+        assert!(row.is_some(), "no row {start}:\n{table}");
+        let row = row.unwrap_or_default();
+        for field in ["atm_vol", "skew_25_delta"] {
+            let shown = format!("<td>{:.2}</td>", 100.0 * t[field].as_f64().expect("figure"));
+            assert!(row.contains(&shown), "{name} {field}: {shown} in {row}");
+        }
+    }
 }
 
 /// The side panel's figures are the stored analysis's, rounded for reading: each

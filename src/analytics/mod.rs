@@ -20,6 +20,7 @@ pub mod seasoned_swaps;
 pub mod slice;
 pub mod smile;
 pub mod special;
+pub mod tenors;
 pub mod term;
 pub mod tolerances;
 pub mod uncertainty;

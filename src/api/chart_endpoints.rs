@@ -7,13 +7,14 @@ use super::error::{ApiError, ProblemDetails};
 use super::history::{history_item, HistoryFit, HistoryItem};
 use super::query::query_params;
 use super::state::AppState;
-use crate::chart_drawing::{parameter_history_svg, term_structure_svg, TermPoint};
+use crate::chart_drawing::{term_structure_svg, TermPoint};
 use crate::store::{HistoryQuery, Revisions, Store};
+use crate::time_chart::{time_chart_svg, TimePoint, TimeSeries};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 use axum::http::{header, HeaderValue, StatusCode};
 use axum::response::{Html, IntoResponse, Response};
-use chrono::{DateTime, Duration, Utc};
+use chrono::{DateTime, Utc};
 use serde::Deserialize;
 use utoipa::{IntoParams, ToSchema};
 
@@ -38,7 +39,8 @@ pub fn term_points(item: &HistoryItem) -> Vec<TermPoint> {
         .collect()
 }
 
-fn svg_response(svg: String, etag: Option<HeaderValue>) -> Response {
+/// An SVG body, not cached without revalidation, with an optional entity tag.
+pub fn svg_response(svg: String, etag: Option<HeaderValue>) -> Response {
     let mut response = (StatusCode::OK, svg).into_response();
     let headers = response.headers_mut();
     headers.insert(header::CONTENT_TYPE, HeaderValue::from_static("image/svg+xml"));
@@ -49,7 +51,8 @@ fn svg_response(svg: String, etag: Option<HeaderValue>) -> Response {
     response
 }
 
-fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
+/// A chart that could not be drawn: an internal error.
+pub fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
     ApiError::Internal(e.to_string())
 }
 
@@ -115,7 +118,11 @@ pub enum ChartParamDoc {
     LeverageRmse,
 }
 
-fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<Utc>>, ApiError> {
+/// An optional RFC 3339 query parameter.
+///
+/// # Errors
+/// [`ApiError::Parameter`] naming it.
+pub fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<Utc>>, ApiError> {
     text.map(|t| {
         DateTime::parse_from_rfc3339(t)
             .map(|d| d.with_timezone(&Utc))
@@ -129,7 +136,8 @@ fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<
     get, path = "/v1/underlyings/{underlying}/history/chart.svg", tag = "charts",
     params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50"), ParamChartQuery),
     responses(
-        (status = 200, description = "The parameter against valuation time (the current revision of each `as_of`)",
+        (status = 200, description = "The parameter against valuation time (the current revision of each `as_of`); \
+each point links to its snapshot's page (`/?snapshot=ID`)",
          body = String, content_type = "image/svg+xml"),
         (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
@@ -170,33 +178,41 @@ pub async fn get_history_chart(
         revisions: Revisions::Current,
     };
     let records = state.store().history(&history).await.map_err(|e| state.store_failed("history", e))?;
-    let mut values = Vec::new();
+    let mut points = Vec::new();
     for record in &records {
         if let Some(v) = history_item(record)?.fit.as_ref().and_then(pick) {
-            values.push((record.as_of, v));
+            points.push(TimePoint {
+                at: record.as_of,
+                value: Some(v),
+                href: snapshot_page(record.id),
+                snapshot_id: record.id,
+            });
         }
     }
-    let Some(first) = values.first().map(|v| v.0) else {
+    if points.is_empty() {
         return Err(ApiError::NotFound(format!("no fitted {param} for underlying {underlying:?} in the range")));
-    };
-    let hours: Vec<(f64, f64)> =
-        values.iter().map(|(t, v)| ((*t - first).num_milliseconds() as f64 / 3.6e6, *v)).collect();
-    let multi_day = values.last().is_some_and(|l| l.0 - first > Duration::hours(24));
-    let label = move |h: f64| {
-        let t = first + Duration::milliseconds((h * 3.6e6) as i64);
-        if multi_day {
-            t.format("%m-%d %H:%M").to_string()
-        } else {
-            t.format("%H:%M").to_string()
-        }
-    };
-    let title = format!("{underlying}: {param} through time ({} snapshots)", values.len());
-    let svg = parameter_history_svg(&title, param, &hours, &label).map_err(chart_failed)?;
+    }
+    let (lo, hi) = points
+        .iter()
+        .filter_map(|p| p.value)
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    // Enough decimals that neighbouring ticks (about a sixth of the range apart) differ.
+    let decimals = (2.0 - ((hi - lo).max(1e-9) / 10.0).log10().floor()).clamp(2.0, 8.0) as usize;
+    let title = format!("{underlying}: {param} through time ({} snapshots)", points.len());
+    let series = [TimeSeries { label: param.to_string(), points }];
+    let svg = time_chart_svg(&title, param, &series, decimals).map_err(chart_failed)?;
     Ok(svg_response(svg, None))
+}
+
+/// The overview page of a stored snapshot.
+pub fn snapshot_page(id: i64) -> String {
+    format!("/?snapshot={id}")
 }
 
 /// The overview page.
 #[utoipa::path(get, path = "/", tag = "charts",
+    params(("snapshot" = Option<i64>, Query, description = "A stored snapshot to show instead of the latest \
+(read by the page's script; the page itself is the same)", example = 1)),
     responses((status = 200, description = "Overview page (HTML)", body = String, content_type = "text/html")))]
 pub async fn get_overview() -> Html<&'static str> {
     Html(OVERVIEW_HTML)

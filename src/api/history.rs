@@ -6,6 +6,7 @@
 use super::error::{ApiError, ProblemDetails};
 use super::query::query_params;
 use super::state::AppState;
+use super::tenor_history::{attach_changes, write_tenor_rows, RowIdentity, TenorRow, TENOR_CSV_HEADER};
 use super::timestamps::rfc3339;
 use crate::store::{HistoryPosition, HistoryQuery, Revisions, Store, StoredSnapshot};
 use axum::extract::rejection::QueryRejection;
@@ -48,6 +49,31 @@ pub struct HistoryParams {
     /// revision, older ones with `superseded_by`.
     #[param(value_type = Option<RevisionChoice>, inline, example = "current")]
     pub revisions: Option<String>,
+    /// CSV rows: `expiries` (default, one row per snapshot and expiry) or `tenors` (one
+    /// row per snapshot and standard tenor, with the changes; vols in vol points).
+    #[param(value_type = Option<CsvRowsDoc>, inline, example = "tenors")]
+    pub rows: Option<String>,
+}
+
+/// What one CSV row of the history is.
+#[derive(Debug, Clone, Copy, Deserialize, ToSchema)]
+#[serde(rename_all = "snake_case")]
+pub enum CsvRowsDoc {
+    /// One row per snapshot and expiry.
+    Expiries,
+    /// One row per snapshot and standard tenor.
+    Tenors,
+}
+
+/// Whether the CSV rows are tenors (`rows=tenors`) rather than expiries.
+fn tenor_rows(text: Option<&str>) -> Result<bool, ApiError> {
+    match text {
+        None | Some("expiries") => Ok(false),
+        Some("tenors") => Ok(true),
+        Some(other) => {
+            Err(ApiError::Parameter { name: "rows", message: format!("must be `expiries` or `tenors`, got {other:?}") })
+        }
+    }
 }
 
 /// Which revisions the history lists.
@@ -113,7 +139,21 @@ pub struct HistoryItem {
     pub fit: Option<HistoryFit>,
     /// Term structure.
     pub curve: Vec<HistoryPoint>,
+    /// The standard tenors (1M, 3M, 6M, 1Y, 2Y) from `curve`, by the rule of the
+    /// analysis' `tenors`, with their changes since `previous_id` and `first_of_day_id`.
+    pub tenors: Vec<HistoryTenor>,
+    /// Id of the snapshot the `change_since_previous` figures are measured from: the
+    /// current revision of the latest `as_of` before this one; absent for the first.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub previous_id: Option<i64>,
+    /// Id of the snapshot the `change_since_first_of_day` figures are measured from:
+    /// the current revision of the first `as_of` of the same UTC day (this one's own id
+    /// for the first snapshot of the day).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub first_of_day_id: Option<i64>,
 }
+
+pub use super::tenor_history::HistoryTenor;
 
 /// The fit of one snapshot, as stored.
 #[derive(Debug, Clone, Serialize, Deserialize, ToSchema)]
@@ -162,6 +202,12 @@ pub struct HistoryPoint {
     /// `sqrt(gamma_swap)`.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub gamma_swap_vol: Option<f64>,
+    /// At-the-money vol (decimal), as the analysis reported it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub atm_vol: Option<f64>,
+    /// 25-delta put vol minus 25-delta call vol (decimal), as the analysis reported it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub skew_25_delta: Option<f64>,
     /// The expiry's quality flags, as the analysis reported them.
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub quality: Option<HistoryQuality>,
@@ -235,8 +281,25 @@ pub fn history_item(record: &StoredSnapshot) -> Result<HistoryItem, ApiError> {
         revision: record.revision,
         superseded_by: record.superseded_by,
         fit,
+        tenors: super::tenor_history::tenors_of_levels(&expiry_levels(&curve)),
         curve,
+        previous_id: None,
+        first_of_day_id: None,
     })
+}
+
+/// The levels of a stored curve the standard tenors are read from.
+pub fn expiry_levels(curve: &[HistoryPoint]) -> Vec<crate::analytics::tenors::ExpiryLevels> {
+    curve
+        .iter()
+        .map(|p| crate::analytics::tenors::ExpiryLevels {
+            tau: p.tau,
+            variance_swap: p.variance_swap,
+            gamma_swap: p.gamma_swap,
+            atm_vol: p.atm_vol,
+            skew_25_delta: p.skew_25_delta,
+        })
+        .collect()
 }
 
 /// Most hexadecimal digits of each part of a cursor: 15 digits (60 bits) hold every
@@ -413,6 +476,27 @@ fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
     writer.into_inner().map_err(|e| ApiError::Internal(format!("CSV: {e}")))
 }
 
+/// The tenor CSV of a page (`rows=tenors`).
+fn tenor_csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
+    let failed = |e: csv::Error| ApiError::Internal(format!("CSV: {e}"));
+    let mut writer = csv::Writer::from_writer(Vec::new());
+    writer.write_record(TENOR_CSV_HEADER).map_err(failed)?;
+    for item in &page.items {
+        let identity = RowIdentity {
+            id: item.id,
+            underlying: &page.underlying,
+            as_of: &item.as_of,
+            stored_at: &item.stored_at,
+            revision: item.revision,
+            superseded_by: item.superseded_by,
+            previous_id: item.previous_id,
+            first_of_day_id: item.first_of_day_id,
+        };
+        write_tenor_rows(&mut writer, &identity, &item.tenors, &cell).map_err(failed)?;
+    }
+    writer.into_inner().map_err(|e| ApiError::Internal(format!("CSV: {e}")))
+}
+
 /// Fits and term-structure points of an underlying over time.
 #[utoipa::path(
     get, path = "/v1/underlyings/{underlying}/history", tag = "underlyings",
@@ -444,6 +528,7 @@ pub async fn get_history(
     super::query::checked_underlying(&underlying)?;
     let params = query_params(params)?;
     let csv = wants_csv(params.format.as_deref(), &headers)?;
+    let by_tenor = tenor_rows(params.rows.as_deref())?;
     let query = HistoryQuery {
         underlying: underlying.clone(),
         from: parse_time("from", params.from.as_deref())?,
@@ -466,11 +551,22 @@ pub async fn get_history(
     records.truncate(query.limit as usize);
     let next_cursor =
         more.then(|| records.last().map(|r| encode_cursor(HistoryPosition { as_of: r.as_of, id: r.id }))).flatten();
-    let items = records.iter().map(history_item).collect::<Result<Vec<_>, _>>()?;
+    let mut items = records.iter().map(history_item).collect::<Result<Vec<_>, _>>()?;
+    let mut rows: Vec<TenorRow> = records
+        .iter()
+        .zip(items.iter_mut())
+        .map(|(record, item)| TenorRow {
+            record,
+            tenors: &mut item.tenors,
+            previous_id: &mut item.previous_id,
+            first_of_day_id: &mut item.first_of_day_id,
+        })
+        .collect();
+    attach_changes(&state, &underlying, &mut rows).await?;
     let page = HistoryPage { underlying: underlying.clone(), items, next_cursor };
     let mut response = if csv {
-        ([(header::CONTENT_TYPE, HeaderValue::from_static("text/csv; charset=utf-8"))], csv_body(&page)?)
-            .into_response()
+        let body = if by_tenor { tenor_csv_body(&page)? } else { csv_body(&page)? };
+        ([(header::CONTENT_TYPE, HeaderValue::from_static("text/csv; charset=utf-8"))], body).into_response()
     } else {
         Json(&page).into_response()
     };
@@ -481,6 +577,7 @@ pub async fn get_history(
             ("limit", params.limit.as_deref()),
             ("format", params.format.as_deref()),
             ("revisions", params.revisions.as_deref()),
+            ("rows", params.rows.as_deref()),
             ("cursor", Some(cursor)),
         ]);
         next = format!("</v1/underlyings/{}/history?{next}>; rel=\"next\"", percent_encode(&underlying));

@@ -19,6 +19,8 @@ pub mod openapi;
 pub mod query;
 pub mod responses;
 pub mod state;
+pub mod tenor_charts;
+pub mod tenor_history;
 pub mod timestamps;
 pub mod valuation_endpoints;
 
@@ -48,6 +50,7 @@ pub fn router(state: AppState) -> Router {
     Router::new()
         .route("/v1/snapshots", post(handlers::post_snapshot))
         .route("/v1/snapshots/{id}", get(handlers::get_snapshot))
+        .route("/v1/snapshots/{id}/chart.svg", get(tenor_charts::get_snapshot_chart))
         .route("/v1/analyze", post(handlers::post_analyze))
         .route("/v1/fits", post(handlers::post_fit))
         .route("/v1/valuations", post(valuation_endpoints::post_valuation))
@@ -57,6 +60,7 @@ pub fn router(state: AppState) -> Router {
         .route("/v1/underlyings/{underlying}/history", get(history::get_history))
         .route("/v1/underlyings/{underlying}/latest/chart.svg", get(chart_endpoints::get_latest_chart))
         .route("/v1/underlyings/{underlying}/history/chart.svg", get(chart_endpoints::get_history_chart))
+        .route("/v1/underlyings/{underlying}/history/tenors.svg", get(tenor_charts::get_tenor_chart))
         .route("/", get(chart_endpoints::get_overview))
         .route("/healthz", get(handlers::healthz))
         .route("/readyz", get(handlers::readyz))

@@ -254,6 +254,13 @@ pub trait Store: Send + Sync {
         -> impl Future<Output = Result<Option<StoredSnapshot>, StoreError>> + Send;
     /// The latest snapshot of an underlying (largest `as_of`, its newest revision).
     fn latest(&self, underlying: &str) -> impl Future<Output = Result<Option<StoredSnapshot>, StoreError>> + Send;
+    /// The current revision of the latest `as_of` strictly before `before` (the
+    /// snapshot a history row's changes are measured from).
+    fn latest_before(
+        &self,
+        underlying: &str,
+        before: DateTime<Utc>,
+    ) -> impl Future<Output = Result<Option<StoredSnapshot>, StoreError>> + Send;
     /// The id of [`Store::latest`], cheaply.
     fn latest_id(&self, underlying: &str) -> impl Future<Output = Result<Option<i64>, StoreError>> + Send;
     /// Every underlying with its latest `as_of`, number of valuation times and of
@@ -323,6 +330,13 @@ impl Store for AnyStore {
     }
     async fn latest(&self, underlying: &str) -> Result<Option<StoredSnapshot>, StoreError> {
         delegate!(self, s => s.latest(underlying))
+    }
+    async fn latest_before(
+        &self,
+        underlying: &str,
+        before: DateTime<Utc>,
+    ) -> Result<Option<StoredSnapshot>, StoreError> {
+        delegate!(self, s => s.latest_before(underlying, before))
     }
     async fn latest_id(&self, underlying: &str) -> Result<Option<i64>, StoreError> {
         delegate!(self, s => s.latest_id(underlying))

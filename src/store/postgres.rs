@@ -3,6 +3,7 @@
 //! long-polling readers.
 
 use super::{HistoryQuery, Insertion, NewSnapshot, Revisions, Store, StoreError, StoredSnapshot, UnderlyingSummary};
+use chrono::{DateTime, Utc};
 use sqlx::postgres::{PgConnectOptions, PgPool, PgPoolOptions, PgRow};
 use sqlx::Row;
 use std::str::FromStr;
@@ -170,6 +171,22 @@ impl Store for PostgresStore {
             "WHERE s.underlying = $1 AND next.id IS NULL ORDER BY s.as_of DESC LIMIT 1"
         ))
         .bind(underlying)
+        .fetch_optional(&self.pool)
+        .await?;
+        row.map(|r| snapshot_from_row(&r, false)).transpose()
+    }
+
+    async fn latest_before(
+        &self,
+        underlying: &str,
+        before: DateTime<Utc>,
+    ) -> Result<Option<StoredSnapshot>, StoreError> {
+        let row = sqlx::query(with_revisions!(
+            "",
+            "WHERE s.underlying = $1 AND s.as_of < $2 AND next.id IS NULL ORDER BY s.as_of DESC LIMIT 1"
+        ))
+        .bind(underlying)
+        .bind(before)
         .fetch_optional(&self.pool)
         .await?;
         row.map(|r| snapshot_from_row(&r, false)).transpose()

@@ -162,6 +162,22 @@ impl Store for SqliteStore {
         row.map(|r| snapshot_from_row(&r, false)).transpose()
     }
 
+    async fn latest_before(
+        &self,
+        underlying: &str,
+        before: DateTime<Utc>,
+    ) -> Result<Option<StoredSnapshot>, StoreError> {
+        let row = sqlx::query(with_revisions!(
+            "",
+            "WHERE s.underlying = ?1 AND s.as_of_us < ?2 AND next.id IS NULL ORDER BY s.as_of_us DESC LIMIT 1"
+        ))
+        .bind(underlying)
+        .bind(to_micros(before))
+        .fetch_optional(&self.pool)
+        .await?;
+        row.map(|r| snapshot_from_row(&r, false)).transpose()
+    }
+
     async fn latest_id(&self, underlying: &str) -> Result<Option<i64>, StoreError> {
         Ok(sqlx::query_scalar(
             "SELECT id FROM snapshots WHERE underlying = ?1 ORDER BY as_of_us DESC, revision DESC LIMIT 1",

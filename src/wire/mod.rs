@@ -9,6 +9,7 @@ pub mod input;
 pub mod output;
 pub mod path;
 pub mod strict;
+pub mod tenors;
 pub mod time;
 pub mod valuation;
 

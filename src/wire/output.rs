@@ -4,6 +4,7 @@ use super::input::{ValidSnapshot, ValidSwaps};
 use crate::analytics::analysis::{Analysis, SliceAnalysis};
 use crate::analytics::calibrate::{DownWeightReason, FitOutcome, FitStatus, ModelKind};
 use crate::analytics::smile::SmileCurve;
+use crate::analytics::tenors::ExpiryLevels;
 use serde::Serialize;
 
 /// The analysis of a snapshot (or, from `logstrip fit`, of swap levels).
@@ -18,7 +19,13 @@ use serde::Serialize;
                "smile": {"method": "svi", "a": 0.0011, "b": 0.0152, "rho": -0.62, "m": 0.012, "sigma": 0.045}}],
     "fit": {"model": "rough_heston", "params": {"hurst": 0.08, "rho_nu": -0.45, "mean_reversion": 0.4},
             "fixed": [], "status": "converged", "iterations": 12, "evaluations": 15, "leverage_rmse": 1.2e-7,
-            "model_leverage_swap": [-0.00065], "active_bounds": [], "elapsed_us": 240}
+            "model_leverage_swap": [-0.00065], "active_bounds": [], "elapsed_us": 240},
+    "tenors": [{"tenor": "1M", "tau": 0.0833, "basis": "interpolated", "variance_swap_vol": 0.2016,
+                "atm_vol": 0.1893, "skew_25_delta": 0.0581, "forward_vol": 0.2016,
+                "gamma_minus_variance_vol": -0.0017, "leverage_swap": -0.0007,
+                "variance_swap": 0.04064, "forward_variance": 0.04064},
+               {"tenor": "2Y", "tau": 2.0, "basis": "omitted",
+                "omitted_reason": "beyond the last expiry (0.0493 years): not extrapolated"}]
 }))]
 pub struct AnalysisDoc {
     /// Underlying name, as given.
@@ -36,6 +43,10 @@ pub struct AnalysisDoc {
     /// The model fit, unless the model was `none`.
     #[serde(skip_serializing_if = "Option::is_none")]
     pub fit: Option<FitResultDoc>,
+    /// The standard tenors 1M, 3M, 6M, 1Y and 2Y, in that order, from `curve`: total
+    /// variance linear in `tau` between expiries (flat forward variance), never
+    /// extrapolated beyond the last expiry (see docs/output.md).
+    pub tenors: Vec<super::tenors::TenorDoc>,
 }
 
 /// Swap levels at one expiry (annualised variance; vols are their square roots).
@@ -343,9 +354,10 @@ pub fn fit_doc(fit: &FitOutcome, nu: Option<f64>) -> FitResultDoc {
 
 /// The output of `logstrip analyze`.
 pub fn analysis_doc(input: &ValidSnapshot, analysis: &Analysis) -> AnalysisDoc {
-    let curve = analysis.slices.iter().map(|s| curve_point(input, s)).collect();
+    let curve: Vec<CurveDoc> = analysis.slices.iter().map(|s| curve_point(input, s)).collect();
     let nu = input.options.fit.as_ref().and_then(|f| f.nu);
     AnalysisDoc {
+        tenors: tenors_of(&curve),
         underlying: input.underlying.clone(),
         as_of: input.as_of.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
         spot: input.spot,
@@ -357,6 +369,21 @@ pub fn analysis_doc(input: &ValidSnapshot, analysis: &Analysis) -> AnalysisDoc {
         curve,
         fit: analysis.fit.as_ref().map(|f| fit_doc(f, nu)),
     }
+}
+
+/// The standard tenors of a curve (sorted by `tau`).
+fn tenors_of(curve: &[CurveDoc]) -> Vec<super::tenors::TenorDoc> {
+    let expiries: Vec<ExpiryLevels> = curve
+        .iter()
+        .map(|c| ExpiryLevels {
+            tau: c.tau,
+            variance_swap: c.variance_swap,
+            gamma_swap: c.gamma_swap,
+            atm_vol: c.atm_vol,
+            skew_25_delta: c.skew_25_delta,
+        })
+        .collect();
+    super::tenors::tenor_docs(&expiries)
 }
 
 /// One expiry of an analysis: its swap levels with their standard errors, forward
@@ -441,7 +468,7 @@ fn smile_doc(curve: &SmileCurve) -> SmileDoc {
 pub fn swaps_doc(input: &ValidSwaps, fit: Option<&FitOutcome>) -> AnalysisDoc {
     let t = &input.target;
     let xi = crate::analytics::calibrate::forward_variances(&t.taus, &t.variance_swap).unwrap_or_default();
-    let curve = (0..t.taus.len())
+    let curve: Vec<CurveDoc> = (0..t.taus.len())
         .map(|i| CurveDoc {
             tau: t.taus[i],
             expiry: input.expiries[i].clone(),
@@ -464,6 +491,7 @@ pub fn swaps_doc(input: &ValidSwaps, fit: Option<&FitOutcome>) -> AnalysisDoc {
         .collect();
     let nu = input.fit.as_ref().and_then(|f| f.nu);
     AnalysisDoc {
+        tenors: tenors_of(&curve),
         underlying: input.underlying.clone(),
         as_of: input.as_of.to_rfc3339_opts(chrono::SecondsFormat::Secs, true),
         spot: input.spot,

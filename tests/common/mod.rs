@@ -332,6 +332,13 @@ pub async fn exercise_store(store: &AnyStore) {
         assert_eq!(ids(&rest), expected, "keyset paging ({revisions:?})");
     }
 
+    // The snapshot before a time: the current revision of the latest earlier as_of,
+    // never one at that time, never another underlying's.
+    let before = |t| store.latest_before("ORIOLE", t);
+    assert_eq!(before(at(20)).await.expect("before").map(|s| s.id), Some(revision.id), "current revision");
+    assert_eq!(before(at(10)).await.expect("before").map(|s| s.id), Some(earlier_posted_last.id));
+    assert!(before(at(5)).await.expect("before").is_none(), "nothing before the first");
+
     // A correction of the latest as_of becomes the latest.
     let corrected = store.insert(record("ORIOLE", 20, "f")).await.expect("insert");
     assert_eq!((corrected.id, corrected.revision, corrected.supersedes), (heron.id + 1, 2, Some(later.id)));
