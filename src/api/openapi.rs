@@ -142,7 +142,7 @@ fn add_header_examples(openapi: &mut utoipa::openapi::OpenApi) {
         input::SnapshotDoc, input::SliceDoc, input::PointDoc, input::PriceDoc, input::FitDoc, input::FixDoc,
         input::SwapsDoc, input::SwapDoc, input::SmileMethodDoc, input::ModelDoc,
         output::AnalysisDoc, output::CurveDoc, output::QualityDoc, output::SmileDoc, output::FitResultDoc,
-        output::ParamsDoc, output::ConvexityDoc, output::FlaggedQuoteDoc, output::FlagReasonDoc,
+        output::ParamsDoc, output::ConvexityDoc, output::FlaggedQuoteDoc, output::FlagReasonDoc, output::QuoteFitDoc,
         super::valuation_endpoints::ValuationRequest, valuation::PositionDoc, valuation::RealizedDoc, valuation::KindDoc,
         valuation::SideDoc, valuation::ClosesDoc, valuation::RealizedOutDoc, valuation::ValuationDoc,
         valuation::PositionValueDoc, valuation::VegaBucketDoc, valuation::TotalsDoc, valuation::TotalDoc,
