@@ -12,5 +12,6 @@ pub mod api;
 pub mod chart_drawing;
 pub mod cli;
 pub mod ingest;
+pub mod smile_drawing;
 pub mod store;
 pub mod wire;

@@ -38,7 +38,8 @@ pub fn term_points(item: &HistoryItem) -> Vec<TermPoint> {
         .collect()
 }
 
-fn svg_response(svg: String, etag: Option<HeaderValue>) -> Response {
+/// An SVG body, not cached without revalidation, with its entity tag.
+pub(crate) fn svg_response(svg: String, etag: Option<HeaderValue>) -> Response {
     let mut response = (StatusCode::OK, svg).into_response();
     let headers = response.headers_mut();
     headers.insert(header::CONTENT_TYPE, HeaderValue::from_static("image/svg+xml"));

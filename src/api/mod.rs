@@ -18,6 +18,7 @@ pub mod metrics;
 pub mod openapi;
 pub mod query;
 pub mod responses;
+pub mod smile_endpoints;
 pub mod state;
 pub mod timestamps;
 pub mod valuation_endpoints;
@@ -57,6 +58,7 @@ pub fn router(state: AppState) -> Router {
         .route("/v1/underlyings/{underlying}/history", get(history::get_history))
         .route("/v1/underlyings/{underlying}/latest/chart.svg", get(chart_endpoints::get_latest_chart))
         .route("/v1/underlyings/{underlying}/history/chart.svg", get(chart_endpoints::get_history_chart))
+        .route("/v1/snapshots/{id}/expiries/{index}/smile.svg", get(smile_endpoints::get_smile_chart))
         .route("/", get(chart_endpoints::get_overview))
         .route("/healthz", get(handlers::healthz))
         .route("/readyz", get(handlers::readyz))

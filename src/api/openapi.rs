@@ -132,6 +132,7 @@ fn add_header_examples(openapi: &mut utoipa::openapi::OpenApi) {
         super::history::get_history,
         super::chart_endpoints::get_latest_chart,
         super::chart_endpoints::get_history_chart,
+        super::smile_endpoints::get_smile_chart,
         super::chart_endpoints::get_overview,
         super::handlers::healthz,
         super::handlers::readyz,
