@@ -83,13 +83,14 @@ async fn overview_page_renders_charts_without_script_errors() {
     assert!(param.contains("<svg") && param.contains("<polyline"), "parameter history drawn with paths");
     assert!(dom.contains("rough_heston") && dom.contains("hurst"), "fit parameters shown");
     assert!(dom.contains("data quality"), "quality section shown");
-    assert!(dom.contains("variance swaps") && dom.contains("± 2 se (vol pts)"), "levels with standard errors shown");
-    assert!(dom.matches("<td>± ").count() >= 30, "a standard error on every expiry of the demo day");
+    assert!(dom.contains("levels by expiry") && dom.contains("± 2 se"), "levels with standard errors shown");
+    assert!(dom.matches("<td class=\"num\">± ").count() >= 30, "a standard error on every expiry of the demo day");
     assert!(dom.contains("flagged quotes"), "flagged quotes section shown");
-    // The page's clock is UTC like every other time on it ("updated 2026-12-05 18:40:12 UTC").
+    // The page's clock is UTC in ISO 8601 like every other time on it ("updated 2026-12-05T18:40:12Z").
     let status = dom.split("id=\"status\"").nth(1).unwrap_or("");
-    let status = status.split('<').next().unwrap_or("");
-    assert!(status.contains("updated ") && status.trim_end().ends_with(" UTC"), "status in UTC: {status}");
+    let status = status.split('<').next().unwrap_or("").trim();
+    let clock = status.strip_prefix(">updated ").unwrap_or("");
+    assert!(chrono::DateTime::parse_from_rfc3339(clock).is_ok() && clock.ends_with('Z'), "status in UTC: {status}");
     page_numbers_are_the_reports(&server, &dom).await;
     for marker in ["Uncaught", "SyntaxError", "TypeError", "ReferenceError", ":ERROR:CONSOLE"] {
         assert!(!log.contains(marker), "script error in the browser log ({marker}):\n{log}");
@@ -117,7 +118,8 @@ async fn page_numbers_are_the_reports(server: &TestServer, dom: &str) {
         .json()
         .await
         .expect("JSON");
-    let side = dom.split("class=\"side\"").nth(1).expect("side panel").split("class=\"history\"").next().unwrap_or("");
+    let side =
+        dom.split("class=\"side\"").nth(1).expect("side panel").split("class=\"smile-view\"").next().unwrap_or("");
     let curve = latest["curve"].as_array().expect("curve");
     assert!(curve.len() >= 10, "the demo day has its expiries");
     for point in curve {
@@ -127,11 +129,11 @@ async fn page_numbers_are_the_reports(server: &TestServer, dom: &str) {
         let skew = point["skew_25_delta"].as_f64().expect("skew_25_delta");
         // Two se of the vol in vol points: d(sqrt v) = dv / (2 sqrt v), so 2 se / (2 vol).
         let row = format!(
-            "<td>{:.2}</td><td>± {:.2}</td><td>{:.2}</td><td>{:.2}</td>",
+            "<td class=\"num\">{:.2}</td><td class=\"num\">{:.2}</td><td class=\"num\">{:.2}</td><td class=\"num\">± {:.2}</td>",
+            100.0 * atm,
+            100.0 * skew,
             100.0 * vol,
             100.0 * se / vol,
-            100.0 * atm,
-            100.0 * skew
         );
         assert!(side.contains(&row), "the page shows {row} for tau {}:\n{side}", point["tau"]);
     }
@@ -144,7 +146,13 @@ async fn page_numbers_are_the_reports(server: &TestServer, dom: &str) {
         } else {
             format!("{value:.4}")
         };
-        let row = format!("<th>{name}</th><td>{shown}</td>");
+        let words = match name.as_str() {
+            "hurst" => "Hurst exponent H",
+            "rho_nu" => "spot-vol correlation × vol of vol (ρν)",
+            "mean_reversion" => "mean reversion κ",
+            other => other,
+        };
+        let row = format!("<th>{words}</th><td>{shown}</td>");
         assert!(side.contains(&row), "the page shows {row}:\n{side}");
     }
     let longest_decimals = side
