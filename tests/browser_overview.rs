@@ -78,7 +78,7 @@ async fn overview_page_renders_charts_without_script_errors() {
     assert!(dom.contains("data-underlying=\"KESTREL50\""), "the underlying has a card:\n{dom}");
     let term = dom.split("class=\"chart term\"").nth(1).expect("term chart container");
     assert!(term.contains("<svg") && term.contains("<polyline"), "term-structure chart drawn with paths");
-    assert!(term.contains("leverage swap (bp of variance)"), "labelled axes");
+    assert!(term.contains("gamma − variance (vol points)") && term.contains(">expiry<"), "labelled axes");
     let param = dom.split("class=\"chart param\"").nth(1).expect("history chart container");
     assert!(param.contains("<svg") && param.contains("<polyline"), "parameter history drawn with paths");
     assert!(dom.contains("rough_heston") && dom.contains("hurst"), "fit parameters shown");

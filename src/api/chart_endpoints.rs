@@ -7,7 +7,7 @@ use super::error::{ApiError, ProblemDetails};
 use super::history::{history_item, HistoryFit, HistoryItem};
 use super::query::query_params;
 use super::state::AppState;
-use crate::chart_drawing::{parameter_history_svg, term_structure_svg, TermPoint};
+use crate::chart_drawing::{expiry_date, parameter_history_svg, term_structure_svg, TermPoint, DEFAULT_WIDTH};
 use crate::store::{HistoryQuery, Revisions, Store};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
@@ -57,11 +57,13 @@ fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
 /// The latest term structures of an underlying as an SVG chart.
 #[utoipa::path(
     get, path = "/v1/underlyings/{underlying}/latest/chart.svg", tag = "charts",
-    params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50")),
+    params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50"), ChartWidthQuery),
     responses(
-        (status = 200, description = "Variance and gamma swap vols, forward vol, leverage swap with the model fit \
-(the current revision of the latest `as_of`)",
+        (status = 200, description = "Variance and gamma swap vols and forward vol (steps; a negative or missing \
+forward variance a shaded gap) in vol points, the leverage swap as gamma-swap vol minus variance-swap vol in vol \
+points with the model fit, by expiry date (the current revision of the latest `as_of`)",
          body = String, content_type = "image/svg+xml", headers(("ETag" = String, description = "Entity tag of the snapshot drawn"))),
+        (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 422, description = "An underlying no snapshot can have (a control character, over 200 characters)", body = ProblemDetails, content_type = "application/problem+json"),
@@ -73,8 +75,10 @@ fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
 pub async fn get_latest_chart(
     State(state): State<AppState>,
     Path(underlying): Path<String>,
+    query: Result<Query<ChartWidthQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     super::query::checked_underlying(&underlying)?;
+    let width = super::query::chart_width(query_params(query)?.width.as_deref(), DEFAULT_WIDTH)?;
     let record = state
         .store()
         .latest(&underlying)
@@ -83,8 +87,19 @@ pub async fn get_latest_chart(
         .ok_or_else(|| ApiError::NotFound(format!("no snapshot of underlying {underlying:?}")))?;
     let item = history_item(&record)?;
     let title = format!("{underlying}  as of {}  (snapshot {})", item.as_of, item.id);
-    let svg = term_structure_svg(&title, &term_points(&item)).map_err(chart_failed)?;
+    let svg = term_structure_svg(&title, &term_points(&item), width, &|tau| expiry_date(record.as_of, tau))
+        .map_err(chart_failed)?;
     Ok(svg_response(svg, HeaderValue::from_str(&format!("\"{}\"", record.id)).ok()))
+}
+
+/// Query of the term-structure chart.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct ChartWidthQuery {
+    /// Chart width in pixels, 320 to 2400 (default 880); the text keeps its size, so
+    /// ask for the width it is shown at.
+    #[param(value_type = Option<u16>, minimum = 320, maximum = 2400, example = 880)]
+    pub width: Option<String>,
 }
 
 /// Query of the parameter history chart.
@@ -100,6 +115,9 @@ pub struct ParamChartQuery {
     /// Exclusive end of `as_of`, RFC 3339.
     #[param(value_type = Option<String>, format = DateTime, example = "2026-12-01T00:00:00Z")]
     pub to: Option<String>,
+    /// Chart width in pixels, 320 to 2400 (default 880).
+    #[param(value_type = Option<u16>, minimum = 320, maximum = 2400, example = 880)]
+    pub width: Option<String>,
 }
 
 /// The fitted parameters a history chart can draw.
@@ -149,6 +167,7 @@ pub async fn get_history_chart(
     super::query::checked_underlying(&underlying)?;
     let query = query_params(query)?;
     let param = query.param.as_deref().unwrap_or("hurst");
+    let width = super::query::chart_width(query.width.as_deref(), DEFAULT_WIDTH)?;
     let pick: fn(&HistoryFit) -> Option<f64> = match param {
         "hurst" => |f| f.hurst,
         "rho_nu" => |f| f.rho_nu,
@@ -192,7 +211,7 @@ pub async fn get_history_chart(
         }
     };
     let title = format!("{underlying}: {param} through time ({} snapshots)", values.len());
-    let svg = parameter_history_svg(&title, param, &hours, &label).map_err(chart_failed)?;
+    let svg = parameter_history_svg(&title, param, &hours, width, &label).map_err(chart_failed)?;
     Ok(svg_response(svg, None))
 }
 

@@ -11,7 +11,7 @@ use super::query::query_params;
 use super::state::AppState;
 use super::timestamps::rfc3339;
 use crate::analytics::analysis::SliceAnalysis;
-use crate::smile_drawing::{smile_svg, MarkedQuote, QuoteMark, SmileView, WIDTH_RANGE};
+use crate::smile_drawing::{smile_svg, MarkedQuote, QuoteMark, SmileView};
 use crate::store::{Store, StoredSnapshot};
 use crate::wire::{self, SnapshotFormat, ValidSnapshot};
 use axum::extract::rejection::QueryRejection;
@@ -40,23 +40,6 @@ pub struct SmileQuery {
     /// ask for the width it is shown at.
     #[param(value_type = Option<u16>, minimum = 320, maximum = 2400, example = 880)]
     pub width: Option<String>,
-}
-
-fn parse_width(text: Option<&str>) -> Result<u32, ApiError> {
-    let Some(text) = text else {
-        return Ok(DEFAULT_SMILE_WIDTH);
-    };
-    let digits = !text.is_empty() && text.len() <= 5 && text.bytes().all(|b| b.is_ascii_digit());
-    match text.parse::<u32>() {
-        Ok(w) if digits && (WIDTH_RANGE.0..=WIDTH_RANGE.1).contains(&w) => Ok(w),
-        _ => Err(ApiError::Parameter {
-            name: "width",
-            message: format!(
-                "must be a whole number of pixels from {} to {}, got {text:?}",
-                WIDTH_RANGE.0, WIDTH_RANGE.1
-            ),
-        }),
-    }
 }
 
 /// The expiry position: a whole number (its place in the analysis's `curve`, from 0).
@@ -95,7 +78,7 @@ pub async fn get_smile_chart(
     Path((id, index)): Path<(String, String)>,
     query: Result<Query<SmileQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
-    let width = parse_width(query_params(query)?.width.as_deref())?;
+    let width = super::query::chart_width(query_params(query)?.width.as_deref(), DEFAULT_SMILE_WIDTH)?;
     let index = parse_index(&index)?;
     let not_found = || ApiError::NotFound(format!("no snapshot with id {id:?}"));
     let numeric: i64 = id.parse().map_err(|_| not_found())?;
@@ -205,10 +188,11 @@ mod tests {
 
     #[test]
     fn widths_and_indices_are_checked() {
-        assert_eq!(parse_width(None).unwrap(), DEFAULT_SMILE_WIDTH);
-        assert_eq!(parse_width(Some("420")).unwrap(), 420);
+        let width = |text| super::super::query::chart_width(text, DEFAULT_SMILE_WIDTH);
+        assert_eq!(width(None).unwrap(), DEFAULT_SMILE_WIDTH);
+        assert_eq!(width(Some("420")).unwrap(), 420);
         for bad in ["", "319", "2401", "+500", "5e2", " 500", "99999999999"] {
-            assert!(parse_width(Some(bad)).is_err(), "{bad:?} taken as a width");
+            assert!(width(Some(bad)).is_err(), "{bad:?} taken as a width");
         }
         assert_eq!(parse_index("12").unwrap(), 12);
         assert_eq!(parse_index("4294967295").unwrap(), 4294967295);
