@@ -12,6 +12,7 @@ pub mod api;
 pub mod chart_drawing;
 pub mod cli;
 pub mod ingest;
+pub mod smile_drawing;
 pub mod store;
 pub mod time_chart;
 pub mod wire;

@@ -31,8 +31,8 @@ pub struct TimeSeries {
     pub points: Vec<TimePoint>,
 }
 
-/// Chart size and margins, pixels (the legend sits in the right margin).
-const WIDTH: f64 = 880.0;
+/// Chart height and margins, pixels (the legend sits in the right margin); the width
+/// is the caller's (text keeps its pixel size at any width).
 const HEIGHT: f64 = 400.0;
 const LEFT: f64 = 84.0;
 const RIGHT: f64 = 150.0;
@@ -64,7 +64,7 @@ fn nice_step(span: f64, count: f64) -> f64 {
 }
 
 /// Figures through time: `series` against valuation time, `y_label` naming the unit,
-/// values written with `decimals` decimals in ticks and tooltips.
+/// values written with `decimals` decimals in ticks and tooltips, `width` pixels wide.
 ///
 /// # Errors
 /// [`ChartError::Empty`] when no series has a value.
@@ -73,7 +73,9 @@ pub fn time_chart_svg(
     y_label: &str,
     series: &[TimeSeries],
     decimals: usize,
+    width: u32,
 ) -> Result<String, ChartError> {
+    let chart_width = f64::from(width);
     let values = || series.iter().flat_map(|s| s.points.iter().filter_map(|p| p.value)).filter(|v| v.is_finite());
     let times = || series.iter().flat_map(|s| s.points.iter().map(|p| p.at));
     let (Some(t0), Some(t1)) = (times().min(), times().max()) else { return Err(ChartError::Empty) };
@@ -86,7 +88,7 @@ pub fn time_chart_svg(
     let span_s = ((t1 - t0).num_milliseconds() as f64 / 1000.0).max(60.0);
     let x_of = |t: DateTime<Utc>| {
         let s = (t - t0).num_milliseconds() as f64 / 1000.0;
-        LEFT + (WIDTH - LEFT - RIGHT) * if t1 > t0 { s / span_s } else { 0.5 }
+        LEFT + (chart_width - LEFT - RIGHT) * if t1 > t0 { s / span_s } else { 0.5 }
     };
     let y_of = |v: f64| TOP + (HEIGHT - TOP - BOTTOM) * (y1 - v) / (y1 - y0);
     let mut svg = String::new();
@@ -94,7 +96,7 @@ pub fn time_chart_svg(
     w(
         &mut svg,
         format!(
-            "<svg xmlns=\"http://www.w3.org/2000/svg\" viewBox=\"0 0 {WIDTH} {HEIGHT}\" width=\"{WIDTH}\" \
+            "<svg xmlns=\"http://www.w3.org/2000/svg\" viewBox=\"0 0 {chart_width} {HEIGHT}\" width=\"{chart_width}\" \
              height=\"{HEIGHT}\" font-family=\"sans-serif\" font-size=\"13\">\n<rect width=\"100%\" height=\"100%\" \
              fill=\"#ffffff\"/>\n<text x=\"{LEFT}\" y=\"22\" font-size=\"15\">{}</text>\n",
             escape(title)
@@ -109,7 +111,7 @@ pub fn time_chart_svg(
             svg,
             "<line x1=\"{LEFT}\" x2=\"{:.1}\" y1=\"{y:.1}\" y2=\"{y:.1}\" stroke=\"#e3e7ec\"/>\
              <text x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"end\">{tick:.decimals$}</text>",
-            WIDTH - RIGHT,
+            chart_width - RIGHT,
             LEFT - 6.0,
             y + 4.0
         );
@@ -147,9 +149,9 @@ pub fn time_chart_svg(
         "<rect x=\"{LEFT}\" y=\"{TOP}\" width=\"{:.1}\" height=\"{:.1}\" fill=\"none\" stroke=\"#9aa4b1\"/>\n\
          <text x=\"{:.1}\" y=\"{:.1}\" text-anchor=\"middle\">valuation time (UTC{})</text>\n\
          <text transform=\"translate(16 {:.1}) rotate(-90)\" text-anchor=\"middle\">{}</text>\n",
-        WIDTH - LEFT - RIGHT,
+        chart_width - LEFT - RIGHT,
         HEIGHT - TOP - BOTTOM,
-        (LEFT + WIDTH - RIGHT) / 2.0,
+        (LEFT + chart_width - RIGHT) / 2.0,
         HEIGHT - 8.0,
         day_note,
         (TOP + HEIGHT - BOTTOM) / 2.0,
@@ -184,7 +186,7 @@ pub fn time_chart_svg(
             );
         }
         let y = TOP + 10.0 + 22.0 * n as f64;
-        let x = WIDTH - RIGHT + 14.0;
+        let x = chart_width - RIGHT + 14.0;
         let _ = writeln!(
             svg,
             "<line x1=\"{x:.1}\" x2=\"{:.1}\" y1=\"{y:.1}\" y2=\"{y:.1}\" stroke=\"{colour}\" stroke-width=\"3\"/>\
@@ -222,7 +224,7 @@ mod tests {
             },
             TimeSeries { label: "1Y <&>".into(), points: vec![point(0, Some(19.1)), point(10, Some(19.0))] },
         ];
-        let svg = time_chart_svg("KESTREL50 variance swap vol", "vol points", &series, 2).expect("drawn");
+        let svg = time_chart_svg("KESTREL50 variance swap vol", "vol points", &series, 2, 880).expect("drawn");
         assert!(svg.starts_with("<svg") && svg.trim_end().ends_with("</svg>"));
         assert_eq!(svg.matches("<a href=").count(), 5, "one link per present value");
         assert!(svg.contains("<a href=\"/?snapshot=30\">"));
@@ -232,7 +234,7 @@ mod tests {
         assert!(svg.contains("1Y &lt;&amp;&gt;") && !svg.contains("1Y <&>"), "text escaped");
         assert!(svg.contains("valuation time (UTC"));
         let empty = TimeSeries { label: "x".into(), points: vec![point(0, None)] };
-        assert!(matches!(time_chart_svg("t", "y", &[empty], 2), Err(ChartError::Empty)));
+        assert!(matches!(time_chart_svg("t", "y", &[empty], 2, 880), Err(ChartError::Empty)));
     }
 
     #[test]

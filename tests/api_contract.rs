@@ -75,6 +75,8 @@ async fn query_parameters_are_enums_and_ranges_the_server_keeps() {
         ("/v1/underlyings/KESTREL50/history?limit=0".to_string(), "limit"),
         ("/v1/underlyings/KESTREL50/history/chart.svg?param=vol".to_string(), "param"),
         ("/v1/underlyings/KESTREL50/history/chart.svg?from=yesterday".to_string(), "from"),
+        ("/v1/underlyings/KESTREL50/history/chart.svg?width=100".to_string(), "width"),
+        ("/v1/underlyings/KESTREL50/latest/chart.svg?width=wide".to_string(), "width"),
     ] {
         let (status, problem) = get(&server, &path).await;
         assert_eq!(status, StatusCode::BAD_REQUEST, "{path}");

@@ -56,6 +56,8 @@ pub struct SliceAnalysis {
     pub delta_levels: Option<DeltaLevels>,
     /// Usable quotes.
     pub points: usize,
+    /// The fitted smile's vol at each usable quote's strike (decimal), in quote order.
+    pub fitted_vols: Vec<f64>,
     /// Quotes left out of the smile or kept but suspect, by strike.
     pub flagged_quotes: Vec<FlaggedQuote>,
     /// Everything suspect about this slice, in words.
@@ -161,7 +163,8 @@ fn analyze_expiry(index: usize, slice: &Slice, smile: FittedSmile) -> SliceAnaly
     let tau = slice.tau();
     let replication = replicate(&smile.curve, smile.quoted_range, tau);
     let level_errors = level_errors(&smile, tau);
-    let flagged_quotes = flagged_quotes(slice, &smile);
+    let fitted_vols = fitted_vols(slice, &smile);
+    let flagged_quotes = flagged_quotes(slice, &smile, &fitted_vols);
     let butterfly = smile.butterfly_over_quotes();
     let warnings = expiry_warnings(slice, &smile, &replication, level_errors.as_ref(), &flagged_quotes, butterfly);
     SliceAnalysis {
@@ -170,6 +173,7 @@ fn analyze_expiry(index: usize, slice: &Slice, smile: FittedSmile) -> SliceAnaly
         forward: slice.forward(),
         discount: slice.discount(),
         points: slice.quotes().len(),
+        fitted_vols,
         delta_levels: delta_levels(&smile.curve, tau),
         flagged_quotes,
         smile,
@@ -182,16 +186,23 @@ fn analyze_expiry(index: usize, slice: &Slice, smile: FittedSmile) -> SliceAnaly
     }
 }
 
+/// The fitted smile's implied vol at each quote's log-moneyness: `sqrt(w(k) / tau)`,
+/// a negative total variance read as zero.
+fn fitted_vols(slice: &Slice, smile: &FittedSmile) -> Vec<f64> {
+    let tau = slice.tau();
+    slice.quotes().iter().map(|q| (smile.curve.total_variance(q.k).max(0.0) / tau).sqrt()).collect()
+}
+
 /// The quotes the smile fit left out or found suspect, in quote order.
-fn flagged_quotes(slice: &Slice, smile: &FittedSmile) -> Vec<FlaggedQuote> {
-    let (quotes, tau) = (slice.quotes(), slice.tau());
+fn flagged_quotes(slice: &Slice, smile: &FittedSmile, fitted_vols: &[f64]) -> Vec<FlaggedQuote> {
+    let quotes = slice.quotes();
     let flag = |index: usize, reason: FlagReason| {
         let q = quotes[index];
         FlaggedQuote {
             index,
             strike: slice.strikes()[index],
             vol: q.vol,
-            fitted_vol: (smile.curve.total_variance(q.k).max(0.0) / tau).sqrt(),
+            fitted_vol: fitted_vols[index],
             half_spread: q.half_spread,
             reason,
         }

@@ -7,14 +7,13 @@ use super::error::{ApiError, ProblemDetails};
 use super::history::{history_item, HistoryFit, HistoryItem};
 use super::query::query_params;
 use super::state::AppState;
-use crate::chart_drawing::{term_structure_svg, TermPoint};
+use crate::chart_drawing::{expiry_date, term_structure_svg, TermPoint, DEFAULT_WIDTH};
 use crate::store::{HistoryQuery, Revisions, Store};
 use crate::time_chart::{time_chart_svg, TimePoint, TimeSeries};
 use axum::extract::rejection::QueryRejection;
 use axum::extract::{Path, Query, State};
 use axum::http::{header, HeaderValue, StatusCode};
 use axum::response::{Html, IntoResponse, Response};
-use chrono::{DateTime, Utc};
 use serde::Deserialize;
 use utoipa::{IntoParams, ToSchema};
 
@@ -59,11 +58,13 @@ pub fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
 /// The latest term structures of an underlying as an SVG chart.
 #[utoipa::path(
     get, path = "/v1/underlyings/{underlying}/latest/chart.svg", tag = "charts",
-    params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50")),
+    params(("underlying" = String, Path, description = "Underlying name", example = "KESTREL50"), ChartWidthQuery),
     responses(
-        (status = 200, description = "Variance and gamma swap vols, forward vol, leverage swap with the model fit \
-(the current revision of the latest `as_of`)",
+        (status = 200, description = "Variance and gamma swap vols and forward vol (steps; a negative or missing \
+forward variance a shaded gap) in vol points, the leverage swap as gamma-swap vol minus variance-swap vol in vol \
+points with the model fit, by expiry date (the current revision of the latest `as_of`)",
          body = String, content_type = "image/svg+xml", headers(("ETag" = String, description = "Entity tag of the snapshot drawn"))),
+        (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No snapshot of this underlying", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 422, description = "An underlying no snapshot can have (a control character, over 200 characters)", body = ProblemDetails, content_type = "application/problem+json"),
@@ -75,8 +76,10 @@ pub fn chart_failed(e: crate::chart_drawing::ChartError) -> ApiError {
 pub async fn get_latest_chart(
     State(state): State<AppState>,
     Path(underlying): Path<String>,
+    query: Result<Query<ChartWidthQuery>, QueryRejection>,
 ) -> Result<Response, ApiError> {
     super::query::checked_underlying(&underlying)?;
+    let width = super::query::chart_width(query_params(query)?.width.as_deref(), DEFAULT_WIDTH)?;
     let record = state
         .store()
         .latest(&underlying)
@@ -85,8 +88,19 @@ pub async fn get_latest_chart(
         .ok_or_else(|| ApiError::NotFound(format!("no snapshot of underlying {underlying:?}")))?;
     let item = history_item(&record)?;
     let title = format!("{underlying}  as of {}  (snapshot {})", item.as_of, item.id);
-    let svg = term_structure_svg(&title, &term_points(&item)).map_err(chart_failed)?;
+    let svg = term_structure_svg(&title, &term_points(&item), width, &|tau| expiry_date(record.as_of, tau))
+        .map_err(chart_failed)?;
     Ok(svg_response(svg, HeaderValue::from_str(&format!("\"{}\"", record.id)).ok()))
+}
+
+/// Query of the term-structure chart.
+#[derive(Debug, Deserialize, IntoParams)]
+#[into_params(parameter_in = Query)]
+pub struct ChartWidthQuery {
+    /// Chart width in pixels, 320 to 2400 (default 880); the text keeps its size, so
+    /// ask for the width it is shown at.
+    #[param(value_type = Option<u16>, minimum = 320, maximum = 2400, example = 880)]
+    pub width: Option<String>,
 }
 
 /// Query of the parameter history chart.
@@ -102,6 +116,9 @@ pub struct ParamChartQuery {
     /// Exclusive end of `as_of`, RFC 3339.
     #[param(value_type = Option<String>, format = DateTime, example = "2026-12-01T00:00:00Z")]
     pub to: Option<String>,
+    /// Chart width in pixels, 320 to 2400 (default 880).
+    #[param(value_type = Option<u16>, minimum = 320, maximum = 2400, example = 880)]
+    pub width: Option<String>,
 }
 
 /// The fitted parameters a history chart can draw.
@@ -116,19 +133,6 @@ pub enum ChartParamDoc {
     MeanReversion,
     /// RMS distance between model and market leverage swaps.
     LeverageRmse,
-}
-
-/// An optional RFC 3339 query parameter.
-///
-/// # Errors
-/// [`ApiError::Parameter`] naming it.
-pub fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<Utc>>, ApiError> {
-    text.map(|t| {
-        DateTime::parse_from_rfc3339(t)
-            .map(|d| d.with_timezone(&Utc))
-            .map_err(|e| ApiError::Parameter { name, message: format!("must be an RFC 3339 time ({e}), got {t:?}") })
-    })
-    .transpose()
 }
 
 /// A fitted parameter of an underlying through time as an SVG chart.
@@ -156,6 +160,7 @@ pub async fn get_history_chart(
     super::query::checked_underlying(&underlying)?;
     let query = query_params(query)?;
     let param = query.param.as_deref().unwrap_or("hurst");
+    let width = super::query::chart_width(query.width.as_deref(), DEFAULT_WIDTH)?;
     let pick: fn(&HistoryFit) -> Option<f64> = match param {
         "hurst" => |f| f.hurst,
         "rho_nu" => |f| f.rho_nu,
@@ -170,8 +175,8 @@ pub async fn get_history_chart(
     };
     let history = HistoryQuery {
         underlying: underlying.clone(),
-        from: parse_time("from", query.from.as_deref())?,
-        to: parse_time("to", query.to.as_deref())?,
+        from: super::query::time_parameter("from", query.from.as_deref())?,
+        to: super::query::time_parameter("to", query.to.as_deref())?,
         after: None,
         limit: MAX_HISTORY_POINTS,
         // One point per valuation time: a corrected snapshot replaces the older one.
@@ -200,7 +205,7 @@ pub async fn get_history_chart(
     let decimals = (2.0 - ((hi - lo).max(1e-9) / 10.0).log10().floor()).clamp(2.0, 8.0) as usize;
     let title = format!("{underlying}: {param} through time ({} snapshots)", points.len());
     let series = [TimeSeries { label: param.to_string(), points }];
-    let svg = time_chart_svg(&title, param, &series, decimals).map_err(chart_failed)?;
+    let svg = time_chart_svg(&title, param, &series, decimals, width).map_err(chart_failed)?;
     Ok(svg_response(svg, None))
 }
 

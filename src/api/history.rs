@@ -14,7 +14,7 @@ use axum::extract::{Path, Query, State};
 use axum::http::{header, HeaderMap, HeaderValue};
 use axum::response::{IntoResponse, Response};
 use axum::Json;
-use chrono::{DateTime, Utc};
+use chrono::DateTime;
 use serde::{Deserialize, Serialize};
 use utoipa::{IntoParams, ToSchema};
 
@@ -353,16 +353,6 @@ const EARLIEST_CURSOR_MICROS: i64 = (-62_167_219_200 - 2 * 86_400) * 1_000_000;
 /// Two days after 9999-12-31T23:59:59Z, in microseconds since 1970.
 const LATEST_CURSOR_MICROS: i64 = (253_402_300_799 + 2 * 86_400) * 1_000_000;
 
-fn parse_time(name: &'static str, text: Option<&str>) -> Result<Option<DateTime<Utc>>, ApiError> {
-    text.map(|t| {
-        DateTime::parse_from_rfc3339(t).map(|d| d.with_timezone(&Utc)).map_err(|e| ApiError::Parameter {
-            name,
-            message: format!("must be an RFC 3339 time such as 2026-11-30T15:30:00Z ({e}), got {t:?}"),
-        })
-    })
-    .transpose()
-}
-
 fn parse_limit(text: Option<&str>) -> Result<u32, ApiError> {
     let Some(text) = text else {
         return Ok(DEFAULT_LIMIT);
@@ -531,8 +521,8 @@ pub async fn get_history(
     let by_tenor = tenor_rows(params.rows.as_deref())?;
     let query = HistoryQuery {
         underlying: underlying.clone(),
-        from: parse_time("from", params.from.as_deref())?,
-        to: parse_time("to", params.to.as_deref())?,
+        from: super::query::time_parameter("from", params.from.as_deref())?,
+        to: super::query::time_parameter("to", params.to.as_deref())?,
         after: params.cursor.as_deref().map(decode_cursor).transpose()?,
         limit: parse_limit(params.limit.as_deref())?,
         revisions: parse_revisions(params.revisions.as_deref())?,

@@ -18,6 +18,7 @@ pub mod metrics;
 pub mod openapi;
 pub mod query;
 pub mod responses;
+pub mod smile_endpoints;
 pub mod state;
 pub mod tenor_charts;
 pub mod tenor_history;
@@ -61,6 +62,7 @@ pub fn router(state: AppState) -> Router {
         .route("/v1/underlyings/{underlying}/latest/chart.svg", get(chart_endpoints::get_latest_chart))
         .route("/v1/underlyings/{underlying}/history/chart.svg", get(chart_endpoints::get_history_chart))
         .route("/v1/underlyings/{underlying}/history/tenors.svg", get(tenor_charts::get_tenor_chart))
+        .route("/v1/snapshots/{id}/expiries/{index}/smile.svg", get(smile_endpoints::get_smile_chart))
         .route("/", get(chart_endpoints::get_overview))
         .route("/healthz", get(handlers::healthz))
         .route("/readyz", get(handlers::readyz))

@@ -26,3 +26,40 @@ pub fn checked_underlying(name: &str) -> Result<(), ApiError> {
         None => Ok(()),
     }
 }
+
+/// An optional RFC 3339 time in a query (`from`, `to`), read as every time a user sends
+/// is ([`crate::wire::time::parse_utc`]: UTC, leap seconds refused).
+///
+/// # Errors
+/// [`ApiError::Parameter`] naming it.
+pub fn time_parameter(
+    name: &'static str,
+    text: Option<&str>,
+) -> Result<Option<chrono::DateTime<chrono::Utc>>, ApiError> {
+    text.map(|t| crate::wire::time::parse_utc(t).map_err(|message| ApiError::Parameter { name, message })).transpose()
+}
+
+/// Narrowest and widest chart a client can ask for, pixels.
+pub const CHART_WIDTH_RANGE: (u32, u32) = (320, 2400);
+
+/// The `width` of a chart in pixels, [`CHART_WIDTH_RANGE`], `default` when absent:
+/// charts keep their text size, so a client asks for the width it shows them at.
+///
+/// # Errors
+/// [`ApiError::Parameter`] naming `width`.
+pub fn chart_width(text: Option<&str>, default: u32) -> Result<u32, ApiError> {
+    let Some(text) = text else {
+        return Ok(default);
+    };
+    let digits = !text.is_empty() && text.len() <= 5 && text.bytes().all(|b| b.is_ascii_digit());
+    match text.parse::<u32>() {
+        Ok(w) if digits && (CHART_WIDTH_RANGE.0..=CHART_WIDTH_RANGE.1).contains(&w) => Ok(w),
+        _ => Err(ApiError::Parameter {
+            name: "width",
+            message: format!(
+                "must be a whole number of pixels from {} to {}, got {text:?}",
+                CHART_WIDTH_RANGE.0, CHART_WIDTH_RANGE.1
+            ),
+        }),
+    }
+}

@@ -3,13 +3,13 @@
 //! time, each point a link to its snapshot) and `GET /v1/snapshots/{id}/chart.svg`
 //! (the term structures of any stored snapshot).
 
-use super::chart_endpoints::{chart_failed, parse_time, snapshot_page, svg_response, term_points};
+use super::chart_endpoints::{chart_failed, snapshot_page, svg_response, term_points, ChartWidthQuery};
 use super::error::{ApiError, ProblemDetails};
 use super::history::history_item;
 use super::query::query_params;
 use super::state::AppState;
 use crate::analytics::tenors::STANDARD_TENORS;
-use crate::chart_drawing::term_structure_svg;
+use crate::chart_drawing::{expiry_date, term_structure_svg, DEFAULT_WIDTH};
 use crate::store::{HistoryQuery, Revisions, Store};
 use crate::time_chart::{time_chart_svg, TimePoint, TimeSeries};
 use axum::extract::rejection::QueryRejection;
@@ -35,6 +35,10 @@ pub struct TenorChartQuery {
     /// Exclusive end of `as_of`, RFC 3339.
     #[param(value_type = Option<String>, format = DateTime, example = "2026-12-01T00:00:00Z")]
     pub to: Option<String>,
+    /// Chart width in pixels, 320 to 2400 (default 880); the text keeps its size, so
+    /// ask for the width it is shown at.
+    #[param(value_type = Option<u16>, minimum = 320, maximum = 2400, example = 880)]
+    pub width: Option<String>,
 }
 
 /// The tenor figures the chart draws (all in vol points).
@@ -106,6 +110,7 @@ pub async fn get_tenor_chart(
     super::query::checked_underlying(&underlying)?;
     let query = query_params(query)?;
     let tenors = chosen_tenors(query.tenors.as_deref())?;
+    let width = super::query::chart_width(query.width.as_deref(), DEFAULT_WIDTH)?;
     let figure = query.figure.as_deref().unwrap_or("variance_swap_vol");
     let Some(&(figure, axis)) = FIGURES.iter().find(|f| f.0 == figure) else {
         let names: Vec<&str> = FIGURES.iter().map(|f| f.0).collect();
@@ -116,8 +121,8 @@ pub async fn get_tenor_chart(
     };
     let history = HistoryQuery {
         underlying: underlying.clone(),
-        from: parse_time("from", query.from.as_deref())?,
-        to: parse_time("to", query.to.as_deref())?,
+        from: super::query::time_parameter("from", query.from.as_deref())?,
+        to: super::query::time_parameter("to", query.to.as_deref())?,
         after: None,
         limit: super::chart_endpoints::MAX_HISTORY_POINTS,
         revisions: Revisions::Current,
@@ -144,7 +149,7 @@ pub async fn get_tenor_chart(
     }
     let name = axis.split(" (").next().unwrap_or(axis);
     let title = format!("{underlying}: {name} by tenor ({} snapshots)", records.len());
-    let svg = time_chart_svg(&title, axis, &series, 2).map_err(|e| match e {
+    let svg = time_chart_svg(&title, axis, &series, 2, width).map_err(|e| match e {
         crate::chart_drawing::ChartError::Empty => {
             ApiError::NotFound(format!("no {figure} at these tenors for underlying {underlying:?} in the range"))
         }
@@ -156,11 +161,12 @@ pub async fn get_tenor_chart(
 /// The term structures of a stored snapshot as an SVG chart.
 #[utoipa::path(
     get, path = "/v1/snapshots/{id}/chart.svg", tag = "charts",
-    params(("id" = i64, Path, description = "Snapshot id", example = 1)),
+    params(("id" = i64, Path, description = "Snapshot id", example = 1), ChartWidthQuery),
     responses(
         (status = 200, description = "Variance and gamma swap vols, forward vol, leverage swap with the model fit of \
 this snapshot (any revision)",
          body = String, content_type = "image/svg+xml", headers(("ETag" = String, description = "Entity tag of the snapshot drawn"))),
+        (status = 400, description = "Invalid query parameter", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 401, description = "Bearer token missing or wrong", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 404, description = "No snapshot with this id", body = ProblemDetails, content_type = "application/problem+json"),
         (status = 503, description = "Store unavailable", body = ProblemDetails, content_type = "application/problem+json",
@@ -168,7 +174,12 @@ this snapshot (any revision)",
     ),
     security((), ("bearer" = []))
 )]
-pub async fn get_snapshot_chart(State(state): State<AppState>, Path(id): Path<String>) -> Result<Response, ApiError> {
+pub async fn get_snapshot_chart(
+    State(state): State<AppState>,
+    Path(id): Path<String>,
+    query: Result<Query<ChartWidthQuery>, QueryRejection>,
+) -> Result<Response, ApiError> {
+    let width = super::query::chart_width(query_params(query)?.width.as_deref(), DEFAULT_WIDTH)?;
     // As `GET /v1/snapshots/{id}`: an id that is no number names no snapshot.
     let not_found = || ApiError::NotFound(format!("no snapshot with id {id:?}"));
     let numeric: i64 = id.parse().map_err(|_| not_found())?;
@@ -177,7 +188,8 @@ pub async fn get_snapshot_chart(State(state): State<AppState>, Path(id): Path<St
     let item = history_item(&record)?;
     let revision = if record.revision > 1 { format!(", revision {}", record.revision) } else { String::new() };
     let title = format!("{}  as of {}  (snapshot {}{revision})", record.underlying, item.as_of, item.id);
-    let svg = term_structure_svg(&title, &term_points(&item)).map_err(chart_failed)?;
+    let svg = term_structure_svg(&title, &term_points(&item), width, &|tau| expiry_date(record.as_of, tau))
+        .map_err(chart_failed)?;
     Ok(svg_response(svg, HeaderValue::from_str(&format!("\"{}\"", record.id)).ok()))
 }
 

@@ -138,8 +138,10 @@ pub fn run_analyze(
     if let Some(path) = svg {
         let points = term_points(&doc);
         let title = format!("{}  as of {}", doc.underlying, doc.as_of);
-        let chart = crate::chart_drawing::term_structure_svg(&title, &points)
-            .map_err(|e| CliError::Io { path: path.display().to_string(), source: std::io::Error::other(e) })?;
+        let date = |tau: f64| crate::chart_drawing::expiry_date(snapshot.as_of, tau);
+        let chart =
+            crate::chart_drawing::term_structure_svg(&title, &points, crate::chart_drawing::DEFAULT_WIDTH, &date)
+                .map_err(|e| CliError::Io { path: path.display().to_string(), source: std::io::Error::other(e) })?;
         std::fs::write(path, chart).map_err(|source| CliError::Io { path: path.display().to_string(), source })?;
     }
     write_json(&doc, pretty, out)

@@ -90,6 +90,13 @@ pub fn demo_snapshot_at(minutes_before: i64) -> Value {
     doc
 }
 
+/// A snapshot of the invented demo day (`demo-data/day`), by its time of day (`1220`).
+pub fn demo_day_snapshot(hhmm: &str) -> Value {
+    let path = format!("{}/demo-data/day/kestrel50-2026-11-30T{hhmm}.json", env!("CARGO_MANIFEST_DIR"));
+    let text = std::fs::read_to_string(path).expect("demo day snapshot");
+    serde_json::from_str(&text).expect("demo day JSON")
+}
+
 /// The same snapshot with every object's keys in reverse order and pretty-printed:
 /// the same content, different bytes.
 pub fn reordered_text(doc: &Value) -> String {
