@@ -351,8 +351,24 @@ async fn history_pages_filters_and_csv() {
         // The vol form and the quality flags ride along; numbers carry at most 12
         // significant digits (no last-bit noise).
         let at = |name: &str| header.iter().position(|h| h == name).unwrap();
-        let vol: f64 = rows[0][at("variance_swap_vol")].parse().unwrap();
-        assert!((vol - vs.sqrt()).abs() <= 1e-11 * vol, "vol {vol} against sqrt({vs})");
+        // Vols in vol points to 3 decimals (half a unit of the last decimal: 5e-4).
+        let vol: f64 = rows[0][at("variance_swap_vol_pts")].parse().unwrap();
+        assert!((vol - 100.0 * vs.sqrt()).abs() <= 5e-4 + 1e-12, "vol {vol} against 100 sqrt({vs})");
+        let history: serde_json::Value = server
+            .client
+            .get(server.url("/v1/underlyings/KESTREL50/history"))
+            .send()
+            .await
+            .unwrap()
+            .json()
+            .await
+            .unwrap();
+        let first = &history["items"][0]["curve"][0];
+        for (column, field) in [("atm_vol_pts", "atm_vol"), ("skew_25_delta_pts", "skew_25_delta")] {
+            let pts: f64 = rows[0][at(column)].parse().unwrap();
+            let json = 100.0 * first[field].as_f64().unwrap();
+            assert!((pts - json).abs() <= 5e-4 + 1e-12, "{column} {pts} against {json}");
+        }
         assert!(rows.iter().all(|r| ["true", "false"].contains(&&r[at("butterfly_ok")])));
         assert!(rows.iter().all(|r| r[at("excluded_points")].parse::<u32>().is_ok()));
         let digits = |cell: &str| {

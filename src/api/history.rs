@@ -6,7 +6,9 @@
 use super::error::{ApiError, ProblemDetails};
 use super::query::query_params;
 use super::state::AppState;
-use super::tenor_history::{attach_changes, write_tenor_rows, RowIdentity, TenorRow, TENOR_CSV_HEADER};
+use super::tenor_history::{
+    attach_changes, vol_points_cell, write_tenor_rows, RowIdentity, TenorRow, TENOR_CSV_HEADER,
+};
 use super::timestamps::rfc3339;
 use crate::store::{HistoryPosition, HistoryQuery, Revisions, Store, StoredSnapshot};
 use axum::extract::rejection::QueryRejection;
@@ -379,8 +381,9 @@ fn wants_csv(format: Option<&str>, headers: &HeaderMap) -> Result<bool, ApiError
     }
 }
 
-/// CSV columns, one row per snapshot and expiry.
-pub const CSV_HEADER: [&str; 24] = [
+/// CSV columns, one row per snapshot and expiry: levels in annualised variance, vols
+/// (`_pts`) in vol points to 3 decimals, as on the page and the charts.
+pub const CSV_HEADER: [&str; 26] = [
     "snapshot_id",
     "underlying",
     "as_of",
@@ -394,8 +397,10 @@ pub const CSV_HEADER: [&str; 24] = [
     "leverage_swap",
     "forward_variance",
     "model_leverage_swap",
-    "variance_swap_vol",
-    "gamma_swap_vol",
+    "variance_swap_vol_pts",
+    "gamma_swap_vol_pts",
+    "atm_vol_pts",
+    "skew_25_delta_pts",
     "butterfly_ok",
     "calendar_ok",
     "excluded_points",
@@ -448,8 +453,10 @@ fn csv_body(page: &HistoryPage) -> Result<Vec<u8>, ApiError> {
                     number(p.leverage_swap),
                     cell(p.forward_variance),
                     cell(p.model_leverage_swap),
-                    cell(p.variance_swap_vol),
-                    cell(p.gamma_swap_vol),
+                    vol_points_cell(p.variance_swap_vol),
+                    vol_points_cell(p.gamma_swap_vol),
+                    vol_points_cell(p.atm_vol),
+                    vol_points_cell(p.skew_25_delta),
                     quality.map(|q| q.butterfly_ok.to_string()).unwrap_or_default(),
                     quality.map(|q| q.calendar_ok.to_string()).unwrap_or_default(),
                     quality.map(|q| q.excluded_points.to_string()).unwrap_or_default(),
