@@ -84,6 +84,45 @@ async fn query_parameters_are_enums_and_ranges_the_server_keeps() {
     }
 }
 
+/// Three cases schemathesis found (CI, seed 20261202) where the document and the
+/// server disagreed, each with the rule now stated.
+#[tokio::test]
+async fn the_page_the_tenor_chart_and_path_underlyings_keep_their_documented_rules() {
+    let doc = document();
+    let server = server_with_snapshot().await;
+    // The page's `snapshot` is an int64: one beyond it is a 400 naming it.
+    let (status, _) = get(&server, "/?snapshot=1").await;
+    assert_eq!(status, StatusCode::OK);
+    let (status, problem) = get(&server, "/?snapshot=9223372036854775808").await;
+    assert_eq!(status, StatusCode::BAD_REQUEST);
+    assert_eq!(named(&problem, "parameter"), vec!["snapshot".to_string()]);
+    // Every figure the document lists is one the tenor chart draws (the enum said
+    // `skew25_delta` while the server took `skew_25_delta`).
+    let tenors = "/v1/underlyings/{underlying}/history/tenors.svg";
+    let figures = parameter_schema(&doc, tenors, "figure")["enum"].as_array().cloned().unwrap_or_default();
+    assert_eq!(figures.len(), 5);
+    for figure in figures {
+        let figure = figure.as_str().unwrap_or_default().to_string();
+        let response = server
+            .client
+            .get(server.url(&format!("/v1/underlyings/KESTREL50/history/tenors.svg?figure={figure}")))
+            .send()
+            .await
+            .expect("request");
+        assert_eq!(response.status(), StatusCode::OK, "{figure}");
+    }
+    // An underlying in a path: the document states the service's rules (no control
+    // character, not only white space, at most 200 characters), which refuse with 422.
+    for path in ["/v1/underlyings/{underlying}/history", tenors, "/v1/underlyings/{underlying}/latest"] {
+        let schema = parameter_schema(&doc, path, "underlying");
+        assert_eq!(schema["maxLength"], json!(logstrip::wire::input::MAX_UNDERLYING_CHARS), "{path}");
+        assert_eq!(schema["pattern"], json!(logstrip::api::openapi::UNDERLYING_PATTERN), "{path}");
+    }
+    let (status, problem) = get(&server, "/v1/underlyings/%25%C2%9Dq/history/tenors.svg").await;
+    assert_eq!(status, StatusCode::UNPROCESSABLE_ENTITY);
+    assert_eq!(named(&problem, "parameter"), vec!["underlying".to_string()]);
+}
+
 #[tokio::test]
 async fn a_cursor_of_the_documented_form_is_a_page_and_any_other_a_400() {
     let doc = document();

@@ -218,7 +218,24 @@ pub fn snapshot_page(id: i64) -> String {
 #[utoipa::path(get, path = "/", tag = "charts",
     params(("snapshot" = Option<i64>, Query, description = "A stored snapshot to show instead of the latest \
 (read by the page's script; the page itself is the same)", example = 1)),
-    responses((status = 200, description = "Overview page (HTML)", body = String, content_type = "text/html")))]
-pub async fn get_overview() -> Html<&'static str> {
-    Html(OVERVIEW_HTML)
+    responses(
+        (status = 200, description = "Overview page (HTML)", body = String, content_type = "text/html"),
+        (status = 400, description = "A `snapshot` that is no 64-bit integer", body = ProblemDetails, content_type = "application/problem+json"),
+    ))]
+pub async fn get_overview(query: Result<Query<OverviewQuery>, QueryRejection>) -> Result<Html<&'static str>, ApiError> {
+    if let Some(text) = query_params(query)?.snapshot {
+        text.parse::<i64>().map_err(|_| ApiError::Parameter {
+            name: "snapshot",
+            message: format!("must be a snapshot id (a 64-bit integer), got {text:?}"),
+        })?;
+    }
+    Ok(Html(OVERVIEW_HTML))
+}
+
+/// Query of the overview page: the snapshot it shows, checked here as the document
+/// states it (the page's script reads it).
+#[derive(Debug, Deserialize)]
+pub struct OverviewQuery {
+    /// A stored snapshot's id.
+    pub snapshot: Option<String>,
 }

@@ -24,8 +24,39 @@ impl Modify for BearerSecurity {
             SecurityScheme::Http(HttpBuilder::new().scheme(HttpAuthScheme::Bearer).build()),
         );
         add_header_examples(openapi);
+        describe_path_underlyings(openapi);
         add_response_examples(openapi);
         add_valuation_choices(openapi);
+    }
+}
+
+/// Pattern of an underlying named in a path: what
+/// [`crate::wire::input::underlying_problem`] accepts, as JSON Schema can say it: a
+/// character other than white space, and no control character (Unicode category Cc,
+/// U+0000-U+001F and U+007F-U+009F, Rust's `char::is_control`).
+pub const UNDERLYING_PATTERN: &str =
+    r"^[^\u0000-\u001F\u007F-\u009F]*[^\s\u0000-\u001F\u007F-\u009F][^\u0000-\u001F\u007F-\u009F]*$";
+
+/// Every `{underlying}` path parameter with the rules the service checks
+/// ([`UNDERLYING_PATTERN`], at most `MAX_UNDERLYING_CHARS` characters): a name outside
+/// them is a 422, which the document then states instead of calling the name valid.
+fn describe_path_underlyings(openapi: &mut utoipa::openapi::OpenApi) {
+    use utoipa::openapi::path::ParameterIn;
+    use utoipa::openapi::{schema::Schema, RefOr};
+    for item in openapi.paths.paths.values_mut() {
+        for operation in [&mut item.get, &mut item.post].into_iter().flatten() {
+            for parameter in operation.parameters.iter_mut().flatten() {
+                let RefOr::T(parameter) = parameter else { continue };
+                if parameter.name != "underlying" || !matches!(parameter.parameter_in, ParameterIn::Path) {
+                    continue;
+                }
+                if let Some(RefOr::T(Schema::Object(schema))) = parameter.schema.as_mut() {
+                    schema.pattern = Some(UNDERLYING_PATTERN.to_string());
+                    schema.min_length = Some(1);
+                    schema.max_length = Some(crate::wire::input::MAX_UNDERLYING_CHARS);
+                }
+            }
+        }
     }
 }
 

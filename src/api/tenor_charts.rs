@@ -49,7 +49,9 @@ pub enum TenorFigureChoice {
     VarianceSwapVol,
     /// At-the-money vol.
     AtmVol,
-    /// 25-delta put vol minus 25-delta call vol.
+    /// 25-delta put vol minus 25-delta call vol (named as the analysis names it; the
+    /// snake-case rule alone would write `skew25_delta`).
+    #[serde(rename = "skew_25_delta")]
     Skew25Delta,
     /// Forward vol from the previous standard tenor.
     ForwardVol,
