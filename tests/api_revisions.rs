@@ -31,12 +31,6 @@ async fn get(server: &TestServer, path: &str) -> reqwest::Response {
     server.client.get(server.url(path)).send().await.expect("request")
 }
 
-async fn get_json(server: &TestServer, path: &str) -> Value {
-    let response = get(server, path).await;
-    assert_eq!(response.status(), StatusCode::OK, "{path}");
-    response.json().await.expect("JSON")
-}
-
 /// Posts a snapshot; returns the status and the body.
 async fn post(server: &TestServer, body: String) -> (StatusCode, Value) {
     let response = post_json(server, "/v1/snapshots", body).await;
@@ -113,20 +107,20 @@ async fn corrections_are_revisions(server: &TestServer) {
     assert_eq!(latest["fit"], versions[2]["fit"]);
 
     // Older revisions stay readable by id, and say what replaced them.
-    let first = get_json(server, &format!("/v1/snapshots/{}?include=input", id(0))).await;
+    let first = server.get_json(&format!("/v1/snapshots/{}?include=input", id(0))).await;
     assert_eq!((first["revision"].as_i64(), first["superseded_by"].as_i64()), (Some(1), Some(id(1))));
     assert_eq!(first["input"], corrected(1.0));
 
     // History: one item per as_of by default, every revision with revisions=all.
-    let history = get_json(server, "/v1/underlyings/KESTREL50/history").await;
+    let history = server.get_json("/v1/underlyings/KESTREL50/history").await;
     assert_eq!(ids(&history), vec![earlier_id, after_id, id(2)]);
     let items = history["items"].as_array().expect("items");
     assert_eq!(items.iter().map(|i| i["revision"].as_i64().expect("revision")).collect::<Vec<_>>(), vec![1, 1, 3]);
     assert!(items.iter().all(|i| i.get("superseded_by").is_none()));
     assert_eq!(items[2]["fit"]["hurst"], versions[2]["fit"]["params"]["hurst"]);
-    let current = get_json(server, "/v1/underlyings/KESTREL50/history?revisions=current").await;
+    let current = server.get_json("/v1/underlyings/KESTREL50/history?revisions=current").await;
     assert_eq!(ids(&current), ids(&history));
-    let all = get_json(server, "/v1/underlyings/KESTREL50/history?revisions=all").await;
+    let all = server.get_json("/v1/underlyings/KESTREL50/history?revisions=all").await;
     assert_eq!(ids(&all), vec![earlier_id, after_id, id(0), id(1), id(2)]);
     let standing: Vec<(i64, Option<i64>)> = all["items"]
         .as_array()
@@ -143,7 +137,7 @@ async fn corrections_are_revisions(server: &TestServer) {
     let page: Value = page.json().await.expect("JSON");
     let cursor = page["next_cursor"].as_str().expect("cursor");
     let rest =
-        get_json(server, &format!("/v1/underlyings/KESTREL50/history?revisions=all&limit=3&cursor={cursor}")).await;
+        server.get_json(&format!("/v1/underlyings/KESTREL50/history?revisions=all&limit=3&cursor={cursor}")).await;
     assert_eq!(ids(&rest), vec![id(1), id(2)]);
 
     // CSV: the same choice, one row per snapshot and expiry.
@@ -184,7 +178,7 @@ async fn corrections_are_revisions(server: &TestServer) {
     assert!(chart.text().await.expect("SVG").contains(&format!("(snapshot {})", id(2))));
 
     // The list of underlyings counts valuation times and the superseded revisions.
-    let list = get_json(server, "/v1/underlyings").await;
+    let list = server.get_json("/v1/underlyings").await;
     assert_eq!(list["underlyings"][0]["snapshots"], 3);
     assert_eq!(list["underlyings"][0]["superseded"], 2);
 

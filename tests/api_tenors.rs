@@ -19,12 +19,6 @@ fn day_snapshot(time: &str, as_of: Option<&str>) -> Value {
     doc
 }
 
-async fn get_json(server: &TestServer, path: &str) -> Value {
-    let response = server.client.get(server.url(path)).send().await.expect("request");
-    assert_eq!(response.status(), reqwest::StatusCode::OK, "GET {path}");
-    response.json().await.expect("JSON")
-}
-
 async fn get_text(server: &TestServer, path: &str) -> (reqwest::StatusCode, String, String) {
     let response = server.client.get(server.url(path)).send().await.expect("request");
     let status = response.status();
@@ -72,7 +66,7 @@ fn variance_swap_vol_by_hand(curve: &[Value], tau: f64) -> f64 {
 async fn history_rows_carry_tenors_with_changes_since_previous_and_first_of_day() {
     let server = start_sqlite(open_settings()).await;
     let ids = post_four(&server).await;
-    let history = get_json(&server, "/v1/underlyings/KESTREL50/history").await;
+    let history = server.get_json("/v1/underlyings/KESTREL50/history").await;
     let items = history["items"].as_array().expect("items");
     assert_eq!(items.len(), 4);
     for (item, id) in items.iter().zip(&ids) {
@@ -82,7 +76,7 @@ async fn history_rows_carry_tenors_with_changes_since_previous_and_first_of_day(
         assert_eq!(names, ["1M", "3M", "6M", "1Y", "2Y"]);
         // The history's figures are the stored analysis's (read back from JSON text,
         // which serde_json parses to within an ulp or two, hence the tolerance).
-        let stored = get_json(&server, &format!("/v1/snapshots/{id}")).await;
+        let stored = server.get_json(&format!("/v1/snapshots/{id}")).await;
         let curve = stored["curve"].as_array().expect("curve");
         for (tenor, reported) in tenors.iter().zip(stored["tenors"].as_array().expect("analysis tenors")) {
             for field in ["variance_swap_vol", "atm_vol", "skew_25_delta", "forward_vol", "leverage_swap"] {
@@ -126,7 +120,7 @@ async fn history_rows_carry_tenors_with_changes_since_previous_and_first_of_day(
     // One row a page: the references come from the store, with the same changes.
     let mut cursor = String::new();
     for (position, item) in items.iter().enumerate() {
-        let page = get_json(&server, &format!("/v1/underlyings/KESTREL50/history?limit=1{cursor}")).await;
+        let page = server.get_json(&format!("/v1/underlyings/KESTREL50/history?limit=1{cursor}")).await;
         let row = &page["items"][0];
         assert_eq!(row["id"], item["id"]);
         assert_eq!(
@@ -137,7 +131,7 @@ async fn history_rows_carry_tenors_with_changes_since_previous_and_first_of_day(
         cursor = page["next_cursor"].as_str().map(|c| format!("&cursor={c}")).unwrap_or_default();
     }
     // A window starting mid-day still measures from the day's first snapshot.
-    let window = get_json(&server, "/v1/underlyings/KESTREL50/history?from=2026-11-30T09:45:00Z").await;
+    let window = server.get_json("/v1/underlyings/KESTREL50/history?from=2026-11-30T09:45:00Z").await;
     assert_eq!(window["items"][0]["first_of_day_id"].as_i64(), Some(ids[1]));
     assert_eq!(window["items"][0]["previous_id"].as_i64(), Some(ids[2]));
 }
@@ -146,7 +140,7 @@ async fn history_rows_carry_tenors_with_changes_since_previous_and_first_of_day(
 async fn tenor_csv_has_one_row_per_snapshot_and_tenor_in_vol_points() {
     let server = start_sqlite(open_settings()).await;
     let ids = post_four(&server).await;
-    let history = get_json(&server, "/v1/underlyings/KESTREL50/history").await;
+    let history = server.get_json("/v1/underlyings/KESTREL50/history").await;
     let (status, media, text) = get_text(&server, "/v1/underlyings/KESTREL50/history?format=csv&rows=tenors").await;
     assert_eq!(status, reqwest::StatusCode::OK);
     assert!(media.starts_with("text/csv"), "{media}");
@@ -284,7 +278,7 @@ async fn changes_are_measured_from_current_revisions() {
         ids.push(response.json::<Value>().await.expect("JSON")["id"].as_i64().expect("id"));
     }
     let (first, later, correction) = (ids[0], ids[1], ids[2]);
-    let current = get_json(&server, "/v1/underlyings/KESTREL50/history").await;
+    let current = server.get_json("/v1/underlyings/KESTREL50/history").await;
     let refs = |page: &Value| -> Vec<(i64, Option<i64>, Option<i64>)> {
         page["items"]
             .as_array()
@@ -294,7 +288,7 @@ async fn changes_are_measured_from_current_revisions() {
             .collect()
     };
     assert_eq!(refs(&current), vec![(correction, None, Some(correction)), (later, Some(correction), Some(correction))]);
-    let all = get_json(&server, "/v1/underlyings/KESTREL50/history?revisions=all").await;
+    let all = server.get_json("/v1/underlyings/KESTREL50/history?revisions=all").await;
     assert_eq!(
         refs(&all),
         vec![

@@ -89,17 +89,17 @@ async fn overview_page_renders_charts_without_script_errors() {
     assert!(!dom.contains("class=\"empty\">No chart:"), "every chart loaded:\n{dom}");
     page_numbers_are_the_reports(&server, &dom).await;
     smile_of_the_flagged_expiry_is_shown(&server, &dom).await;
-    let latest = get_value(&server, "/v1/underlyings/KESTREL50/latest").await;
+    let latest = server.get_json("/v1/underlyings/KESTREL50/latest").await;
     tenor_table_is_the_analysis(&dom, &latest);
     let tenor_chart = dom.split("class=\"chart tenors\"").nth(1).expect("tenor chart container");
     assert!(tenor_chart.contains("<svg") && tenor_chart.contains("<a href=\"/?snapshot="), "linked tenor chart");
     assert_clean_log(&log);
 
     // A stored snapshot by id (not the latest) shows that snapshot's numbers.
-    let history = get_value(&server, "/v1/underlyings/KESTREL50/history").await;
+    let history = server.get_json("/v1/underlyings/KESTREL50/history").await;
     let older = history["items"][0]["id"].as_i64().expect("id");
     assert_ne!(Some(older), latest["id"].as_i64());
-    let stored = get_value(&server, &format!("/v1/snapshots/{older}")).await;
+    let stored = server.get_json(&format!("/v1/snapshots/{older}")).await;
     let by_id = server.url(&format!("/?snapshot={older}&static=1"));
     let browser_id = browser.clone();
     let (dom_id, log_id) =
@@ -211,15 +211,7 @@ impl FramePage {
 /// The smile view opens on the first expiry with a flagged quote: its chart has one
 /// mark per quote, the flagged quote marked as the analysis says, and the list names it.
 async fn smile_of_the_flagged_expiry_is_shown(server: &TestServer, dom: &str) {
-    let latest: serde_json::Value = server
-        .client
-        .get(server.url("/v1/underlyings/KESTREL50/latest"))
-        .send()
-        .await
-        .expect("latest")
-        .json()
-        .await
-        .expect("JSON");
+    let latest = server.get_json("/v1/underlyings/KESTREL50/latest").await;
     let curve = latest["curve"].as_array().expect("curve");
     let (index, point) = curve
         .iter()
@@ -241,10 +233,6 @@ async fn smile_of_the_flagged_expiry_is_shown(server: &TestServer, dom: &str) {
     }
     let warning_link = format!("href=\"#smile-KESTREL50\" class=\"to-smile\" data-index=\"{index}\"");
     assert!(dom.contains(&warning_link), "the expiry's warning links to its smile");
-}
-
-async fn get_value(server: &TestServer, path: &str) -> serde_json::Value {
-    server.client.get(server.url(path)).send().await.expect("GET").json().await.expect("JSON")
 }
 
 /// No script error, console error or failed request in Chromium's log.
@@ -289,15 +277,7 @@ fn tenor_table_is_the_analysis(dom: &str, analysis: &serde_json::Value) {
 /// fit parameter to 4 decimals (or 3 significant digits in exponent form below 1e-3),
 /// and no number carries float noise (7 or more decimals, `-0.0014000000000000054`).
 async fn page_numbers_are_the_reports(server: &TestServer, dom: &str) {
-    let latest: serde_json::Value = server
-        .client
-        .get(server.url("/v1/underlyings/KESTREL50/latest"))
-        .send()
-        .await
-        .expect("latest")
-        .json()
-        .await
-        .expect("JSON");
+    let latest = server.get_json("/v1/underlyings/KESTREL50/latest").await;
     let side =
         dom.split("class=\"side\"").nth(1).expect("side panel").split("class=\"smile-view\"").next().unwrap_or("");
     let curve = latest["curve"].as_array().expect("curve");

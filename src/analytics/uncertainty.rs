@@ -178,23 +178,6 @@ fn wing_integrals(
     (sum.map(|s| s * h / 3.0), parameter_sum.map(|row| row.map(|s| s * h / 3.0)))
 }
 
-/// Standard deviation of each level from the quotes' noise, for level sensitivities
-/// `c` at the kept quotes (see the module documentation) and to the SVI parameters
-/// directly `parameter_sensitivity` (per level; zero unless the wings follow SVI),
-/// with the noise estimated from the residuals (`s^2 = sum (r_i / u_i)^2 / (n - trace T)`
-/// in the quotes' noise units `u_i`, zero when the fit interpolates). `None` when
-/// the lengths disagree or a solve fails.
-pub fn quote_noise_errors(
-    noise: &QuoteNoise,
-    c: &[[f64; 3]],
-    parameter_sensitivity: &[[f64; 5]; 3],
-) -> Option<[f64; 3]> {
-    if c.len() != noise.k.len() {
-        return None;
-    }
-    Some(NoiseResponse::new(noise)?.level_sd(c, parameter_sensitivity))
-}
-
 /// The quotes' estimated noise and what the smile's linear response to it needs besides
 /// the levels' sensitivities: the SVI stage's Jacobian and normal matrix, and the
 /// residual spline's smoother.
@@ -238,8 +221,10 @@ impl<'a> NoiseResponse<'a> {
         self.sd.iter().all(|s| *s == 0.0)
     }
 
-    /// Each level's standard deviation for sensitivities `c` (one per kept quote) and
-    /// `parameter_sensitivity` (see [`quote_noise_errors`]).
+    /// Standard deviation of each level from the quotes' noise, for level sensitivities
+    /// `c` at the kept quotes, one per quote (see the module documentation), and to the
+    /// SVI parameters directly `parameter_sensitivity` (per level; zero unless the wings
+    /// follow SVI), with the noise this response estimated.
     fn level_sd(&self, c: &[[f64; 3]], parameter_sensitivity: &[[f64; 5]; 3]) -> [f64; 3] {
         let (noise, jacobian, normal) = (self.noise, &self.jacobian, &self.normal);
         // H' u for the three levels' sensitivities at once.
@@ -454,7 +439,7 @@ mod tests {
         // and any sensitivities give exactly zero.
         let response = NoiseResponse::new(&noise).expect("response");
         assert!(response.is_silent());
-        assert_eq!(quote_noise_errors(&noise, &rows, &[[1.0; 5]; 3]), Some([0.0; 3]));
+        assert!(response.level_sd(&rows, &[[1.0; 5]; 3]).iter().all(|s| *s == 0.0));
     }
 
     #[test]
@@ -532,7 +517,7 @@ mod tests {
             QuoteNoise { k: k.clone(), residual, scale: vec![1.0; 30], svi_weights: vec![1.0; 30], svi, spline: None };
         let s = (30e-6f64 / 25.0).sqrt();
         let c = vec![[1.0, 1.0, 1.0]; 30];
-        let got = quote_noise_errors(&noise, &c, &[[0.0; 5]; 3]).expect("errors");
+        let got = NoiseResponse::new(&noise).expect("response").level_sd(&c, &[[0.0; 5]; 3]);
         let want = s * (30.0f64).sqrt();
         // 1e-6: the ridge of 1e-12 of the trace, amplified by the normal matrix's
         // condition (about 1e5 here), moves the projection by a few 1e-9.
@@ -541,7 +526,7 @@ mod tests {
         // own noise.
         let mut one = vec![[0.0; 3]; 30];
         one[15] = [1.0; 3];
-        let single = quote_noise_errors(&noise, &one, &[[0.0; 5]; 3]).expect("errors");
+        let single = NoiseResponse::new(&noise).expect("response").level_sd(&one, &[[0.0; 5]; 3]);
         assert!(single[0] < s && single[0] > s * (1.0 / 30.0f64).sqrt());
     }
 

@@ -26,6 +26,13 @@ impl TestServer {
         format!("{}{path}", self.base)
     }
 
+    /// `GET path` as JSON, asserting a 200.
+    pub async fn get_json(&self, path: &str) -> serde_json::Value {
+        let response = self.client.get(self.url(path)).send().await.expect("request");
+        assert_eq!(response.status(), reqwest::StatusCode::OK, "GET {path}");
+        response.json().await.expect("JSON")
+    }
+
     /// `host:port` of the server, for raw TCP connections.
     pub fn address(&self) -> String {
         self.base.trim_start_matches("http://").to_string()
